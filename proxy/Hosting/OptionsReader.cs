@@ -1,0 +1,248 @@
+using System.Globalization;
+using System.Text.RegularExpressions;
+using Microsoft.Extensions.Configuration;
+
+namespace RewriteProxy.Hosting;
+
+/// <summary>
+/// Reads and validates every setting in one pass and reports every bad one, each as a line that names the key,
+/// the value and what is allowed. Parsing by hand (instead of the binder) is what makes those lines possible.
+/// </summary>
+public static class OptionsReader
+{
+    /// <summary>Default MaxDrift of each lane kind; see README "Choosing thresholds" for the measurements.</summary>
+    public const double DefaultSiblingMaxDrift = 0.55;
+    public const double DefaultDraftMaxDrift = 0.65;
+    public const double DefaultHitSimilarity = 0.85;
+
+    public static (RewriteProxyOptions? Options, IReadOnlyList<string> Errors) Read(IConfiguration config)
+    {
+        var r = new Reader(config);
+        var baseUrl = r.AbsoluteUri("Upstream:BaseUrl");
+        var upstream = baseUrl is null ? null : new UpstreamOptions
+        {
+            BaseUrl = baseUrl,
+            Timeout = r.Duration("Upstream:Timeout", TimeSpan.FromSeconds(100), positive: true),
+        };
+        var store = new StoreOptions
+        {
+            Path = r.String("Store:Path") ?? "data/rewriteproxy.db",
+            MaxEntries = r.Long("Store:MaxEntries", 100_000, min: 1),
+            Ttl = r.Duration("Store:Ttl", TimeSpan.FromDays(7), positive: true),
+        };
+        var embedding = new EmbeddingOptions
+        {
+            ModelPath = r.String("Embedding:ModelPath"),
+            VocabPath = r.String("Embedding:VocabPath"),
+            Threads = (int)r.Long("Embedding:Threads", 0, min: 0, max: 256),
+            MaxTokens = (int)r.Long("Embedding:MaxTokens", 256, min: 8, max: 8192),
+            CacheSize = (int)r.Long("Embedding:CacheSize", 4096, min: 0, max: 10_000_000),
+        };
+        if ((embedding.ModelPath is null) != (embedding.VocabPath is null))
+            r.Error("Embedding:ModelPath / Embedding:VocabPath: set both (another model) or neither (the embedded model)");
+
+        var lanes = new Dictionary<string, LaneOptions>(StringComparer.OrdinalIgnoreCase);
+        foreach (var section in config.GetSection("Lanes").GetChildren())
+        {
+            var lane = ReadLane(r, section.Key);
+            if (lane is not null) lanes[section.Key] = lane;
+        }
+
+        var options = new
+        {
+            Partition = r.Choice("Partition", PartitionMode.Credential),
+            Limits = new LimitsOptions
+            {
+                MaxRequestBytes = r.Long("Limits:MaxRequestBytes", 1 << 20, min: 1024),
+                MaxResponseBytes = r.Long("Limits:MaxResponseBytes", 8 << 20, min: 1024),
+            },
+            Admin = new AdminOptions { Token = r.String("Admin:Token") },
+            Events = new EventsOptions
+            {
+                Enabled = r.Bool("Events:Enabled", true),
+                Retention = r.Duration("Events:Retention", TimeSpan.FromDays(7), positive: true),
+                MaxRows = r.Long("Events:MaxRows", 1_000_000, min: 1),
+            },
+            Metrics = new MetricsOptions { Port = (int)r.Long("Metrics:Port", 0, min: 0, max: 65535) },
+        };
+        if (options.Admin.Token is { Length: < 16 })
+            r.Error("Admin:Token is shorter than 16 characters; use a long random token (or leave it out to turn the admin API off)");
+
+        if (r.Errors.Count > 0 || upstream is null) return (null, r.Errors);
+        return (new RewriteProxyOptions
+        {
+            Upstream = upstream,
+            Store = store,
+            Embedding = embedding,
+            Lanes = lanes,
+            Partition = options.Partition,
+            Limits = options.Limits,
+            Admin = options.Admin,
+            Events = options.Events,
+            Metrics = options.Metrics,
+        }, r.Errors);
+    }
+
+    static LaneOptions? ReadLane(Reader r, string name)
+    {
+        var p = $"Lanes:{name}";
+        if (!Regex.IsMatch(name, "^[A-Za-z0-9][A-Za-z0-9_-]{0,63}$"))
+            r.Error($"{p}: lane name '{name}' is not allowed; use letters, digits, '-' and '_' (at most 64)");
+        var kindText = r.String($"{p}:Kind");
+        if (kindText is null)
+        {
+            r.Error($"{p}:Kind is missing; allowed: draft, siblings");
+            return null;
+        }
+        var kind = r.Choice($"{p}:Kind", LaneKind.Draft);
+        var pattern = r.String($"{p}:QuestionPattern");
+        Regex? regex = null;
+        if (pattern is not null)
+        {
+            try
+            {
+                regex = new Regex(pattern, RegexOptions.CultureInvariant | RegexOptions.Singleline, TimeSpan.FromMilliseconds(100));
+                if (!regex.GetGroupNames().Contains("q"))
+                    r.Error($"{p}:QuestionPattern = '{pattern}' has no named group 'q'; write it as (?<q>...)");
+            }
+            catch (ArgumentException e)
+            {
+                r.Error($"{p}:QuestionPattern = '{pattern}' is not a valid .NET regex: {e.Message}");
+            }
+        }
+        return new LaneOptions
+        {
+            Name = name,
+            Kind = kind,
+            HitSimilarity = r.Unit($"{p}:HitSimilarity", DefaultHitSimilarity),
+            MaxDrift = r.Double($"{p}:MaxDrift", kind == LaneKind.Draft ? DefaultDraftMaxDrift : DefaultSiblingMaxDrift, 0, 2),
+            MinSpread = r.Unit($"{p}:MinSpread", 0.05),
+            MaxSiblings = (int)r.Long($"{p}:MaxSiblings", 5, min: 1, max: 100),
+            OnDrift = r.Choice($"{p}:OnDrift", OnDrift.Retry),
+            Retries = (int)r.Long($"{p}:Retries", 1, min: 0, max: 5),
+            Mode = r.Choice($"{p}:Mode", GuardMode.Enforce),
+            QuestionPattern = regex,
+            Candidates = r.Choice($"{p}:Candidates", CandidateRule.Questions),
+        };
+    }
+
+    sealed class Reader(IConfiguration config)
+    {
+        public List<string> Errors { get; } = [];
+
+        public void Error(string line) => Errors.Add(line);
+
+        public string? String(string key)
+        {
+            var v = config[key];
+            return string.IsNullOrWhiteSpace(v) ? null : v.Trim();
+        }
+
+        public Uri? AbsoluteUri(string key)
+        {
+            var v = String(key);
+            if (v is null)
+            {
+                Error($"{key} is missing; set it to the provider's absolute base URL, e.g. https://api.example.com/v1");
+                return null;
+            }
+            if (!Uri.TryCreate(v, UriKind.Absolute, out var uri) || (uri.Scheme != "http" && uri.Scheme != "https"))
+            {
+                Error($"{key} = '{v}' is not allowed; use an absolute http:// or https:// URL, e.g. https://api.example.com/v1");
+                return null;
+            }
+            if (!string.IsNullOrEmpty(uri.Query) || !string.IsNullOrEmpty(uri.Fragment))
+            {
+                Error($"{key} = '{v}' is not allowed; a base URL has no query or fragment");
+                return null;
+            }
+            return uri;
+        }
+
+        public double Unit(string key, double fallback) => Double(key, fallback, 0, 1);
+
+        public double Double(string key, double fallback, double min, double max)
+        {
+            var v = String(key);
+            if (v is null) return fallback;
+            if (!double.TryParse(v, NumberStyles.Float, CultureInfo.InvariantCulture, out var d) || double.IsNaN(d))
+            {
+                Error($"{key} = '{v}' is not a number; allowed: {min.ToString(CultureInfo.InvariantCulture)} to {max.ToString(CultureInfo.InvariantCulture)}");
+                return fallback;
+            }
+            if (d < min || d > max)
+                Error($"{key} = {v} is outside the allowed range [{min.ToString(CultureInfo.InvariantCulture)}, {max.ToString(CultureInfo.InvariantCulture)}]");
+            return d;
+        }
+
+        public long Long(string key, long fallback, long min = long.MinValue, long max = long.MaxValue)
+        {
+            var v = String(key);
+            if (v is null) return fallback;
+            if (!long.TryParse(v, NumberStyles.Integer, CultureInfo.InvariantCulture, out var n))
+            {
+                Error($"{key} = '{v}' is not a whole number; allowed: {Range(min, max)}");
+                return fallback;
+            }
+            if (n < min || n > max) Error($"{key} = {v} is not allowed; allowed: {Range(min, max)}");
+            return n;
+        }
+
+        static string Range(long min, long max) =>
+            max == long.MaxValue ? $"{min} or more" : $"{min} to {max}";
+
+        public bool Bool(string key, bool fallback)
+        {
+            var v = String(key);
+            if (v is null) return fallback;
+            if (bool.TryParse(v, out var b)) return b;
+            Error($"{key} = '{v}' is not allowed; use true or false");
+            return fallback;
+        }
+
+        /// <summary>A duration as a .NET TimeSpan ("00:01:40", "7.00:00:00") or a number with a unit ("100s", "5m", "12h", "7d").</summary>
+        public TimeSpan Duration(string key, TimeSpan fallback, bool positive)
+        {
+            var v = String(key);
+            if (v is null) return fallback;
+            if (!TryParseDuration(v, out var t))
+            {
+                Error($"{key} = '{v}' is not a duration; use e.g. 30s, 5m, 12h, 7d or 00:01:40");
+                return fallback;
+            }
+            if (positive && t <= TimeSpan.Zero) Error($"{key} = '{v}' is not allowed; it must be longer than zero");
+            return t;
+        }
+
+        public T Choice<T>(string key, T fallback) where T : struct, Enum
+        {
+            var v = String(key);
+            if (v is null) return fallback;
+            if (Enum.TryParse<T>(v, ignoreCase: true, out var e) && Enum.IsDefined(e) && !v.All(char.IsDigit)) return e;
+            var allowed = string.Join(", ", Enum.GetNames<T>().Select(n => n.ToLowerInvariant()));
+            Error($"{key} = '{v}' is not allowed; allowed: {allowed}");
+            return fallback;
+        }
+    }
+
+    /// <summary>Parses "90s", "5m", "12h", "7d", "250ms" or a .NET TimeSpan.</summary>
+    public static bool TryParseDuration(string text, out TimeSpan value)
+    {
+        text = text.Trim();
+        var m = Regex.Match(text, @"^(\d+(?:\.\d+)?)\s*(ms|s|m|h|d)$", RegexOptions.IgnoreCase);
+        if (m.Success)
+        {
+            var n = double.Parse(m.Groups[1].Value, CultureInfo.InvariantCulture);
+            value = m.Groups[2].Value.ToLowerInvariant() switch
+            {
+                "ms" => TimeSpan.FromMilliseconds(n),
+                "s" => TimeSpan.FromSeconds(n),
+                "m" => TimeSpan.FromMinutes(n),
+                "h" => TimeSpan.FromHours(n),
+                _ => TimeSpan.FromDays(n),
+            };
+            return true;
+        }
+        return TimeSpan.TryParse(text, CultureInfo.InvariantCulture, out value);
+    }
+}

@@ -1,1 +1,3 @@
-return 0;
+using RewriteProxy.Cli;
+
+return await RootCommandFactory.Create().Parse(args).InvokeAsync();

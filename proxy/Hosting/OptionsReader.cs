@@ -55,6 +55,7 @@ public static class OptionsReader
             {
                 MaxRequestBytes = r.Long("Limits:MaxRequestBytes", 1 << 20, min: 1024),
                 MaxResponseBytes = r.Long("Limits:MaxResponseBytes", 8 << 20, min: 1024),
+                MaxPassthroughBytes = r.Long("Limits:MaxPassthroughBytes", 512L << 20, min: 1024),
             },
             Admin = new AdminOptions { Token = r.String("Admin:Token") },
             Events = new EventsOptions

@@ -101,6 +101,8 @@ public sealed record LimitsOptions
     public long MaxRequestBytes { get; init; } = 1 << 20;
     /// <summary>Largest upstream response body read on a lane call; above it the client gets 502. Default 8 MiB.</summary>
     public long MaxResponseBytes { get; init; } = 8 << 20;
+    /// <summary>Largest passthrough request body (file uploads included); above it the client gets 413. Default 512 MiB.</summary>
+    public long MaxPassthroughBytes { get; init; } = 512L << 20;
 }
 
 public sealed record AdminOptions

@@ -1,0 +1,122 @@
+using System.Diagnostics;
+using Microsoft.Extensions.Configuration;
+using RewriteProxy.Hosting;
+
+namespace RewriteProxy.Tests.Hosting;
+
+public sealed class ConfigurationTests
+{
+    static (int Exit, string Stdout, string Stderr) RunProxy(params string[] args) => RunProxyWith(new(), args);
+
+    /// <summary>Runs the real built binary, as an operator would, with a bounded wait.</summary>
+    static (int Exit, string Stdout, string Stderr) RunProxyWith(Dictionary<string, string> env, params string[] args)
+    {
+        var start = new ProcessStartInfo("dotnet") { RedirectStandardOutput = true, RedirectStandardError = true, UseShellExecute = false };
+        start.ArgumentList.Add("exec");
+        start.ArgumentList.Add(Path.Combine(AppContext.BaseDirectory, "rewriteproxy.dll"));
+        foreach (var a in args) start.ArgumentList.Add(a);
+        start.WorkingDirectory = Path.GetTempPath();
+        foreach (var (k, v) in env) start.Environment[k] = v;
+        using var process = Process.Start(start)!;
+        var stdout = process.StandardOutput.ReadToEndAsync();
+        var stderr = process.StandardError.ReadToEndAsync();
+        if (!process.WaitForExit(30_000))
+        {
+            process.Kill(entireProcessTree: true);
+            Assert.Fail("the proxy did not exit on a bad configuration");
+        }
+        return (process.ExitCode, stdout.Result, stderr.Result);
+    }
+
+    [Theory]
+    [InlineData("--Upstream:BaseUrl=api.example.com/v1", "Upstream:BaseUrl = 'api.example.com/v1' is not allowed")]
+    [InlineData("--Lanes:draft:MaxDrift=1.5x", "Lanes:draft:MaxDrift = '1.5x' is not a number")]
+    [InlineData("--Lanes:siblings:HitSimilarity=1.2", "Lanes:siblings:HitSimilarity = 1.2 is outside the allowed range [0, 1]")]
+    [InlineData("--Lanes:draft:Kind=summary", "Lanes:draft:Kind = 'summary' is not allowed; allowed: draft, siblings")]
+    [InlineData("--Store:MaxEntries=-5", "Store:MaxEntries = -5 is not allowed; allowed: 1 or more")]
+    [InlineData("--Upstream:Timeout=soon", "Upstream:Timeout = 'soon' is not a duration")]
+    public void A_bad_value_stops_the_process_with_one_clear_line(string argument, string expected)
+    {
+        var (exit, _, stderr) = RunProxy(argument, "--urls", "http://127.0.0.1:0");
+
+        Assert.NotEqual(0, exit);
+        var lines = stderr.Split('\n', StringSplitOptions.RemoveEmptyEntries);
+        Assert.Single(lines);
+        Assert.Contains(expected, lines[0]);
+        Assert.DoesNotContain("   at ", stderr);
+    }
+
+    [Fact]
+    public void Environment_variables_override_the_file_and_are_validated()
+    {
+        var (exit, _, stderr) = RunProxyWith(new() { ["REWRITEPROXY_Upstream__BaseUrl"] = "ftp://files.example/v1" }, "--urls", "http://127.0.0.1:0");
+
+        Assert.Equal(2, exit);
+        Assert.Contains("Upstream:BaseUrl = 'ftp://files.example/v1' is not allowed", stderr);
+    }
+
+    [Fact]
+    public void A_missing_config_file_is_one_clear_line()
+    {
+        var (exit, _, stderr) = RunProxy("--config", "/nonexistent/rewriteproxy.json");
+        Assert.Equal(2, exit);
+        Assert.Equal("rewriteproxy: config: --config /nonexistent/rewriteproxy.json: the file does not exist", stderr.Trim());
+    }
+
+    [Fact]
+    public void A_config_file_that_is_not_json_is_one_clear_line()
+    {
+        var file = Path.GetTempFileName();
+        File.WriteAllText(file, "{ \"Upstream\": { \"BaseUrl\": ");
+        try
+        {
+            var (exit, _, stderr) = RunProxy("--config", file);
+            Assert.Equal(2, exit);
+            Assert.Contains("not valid JSON", stderr);
+            Assert.Single(stderr.Split('\n', StringSplitOptions.RemoveEmptyEntries));
+        }
+        finally { File.Delete(file); }
+    }
+
+    [Fact]
+    public void Every_bad_value_is_reported_not_only_the_first()
+    {
+        var config = new ConfigurationBuilder().AddInMemoryCollection(new Dictionary<string, string?>
+        {
+            ["Upstream:BaseUrl"] = "/relative",
+            ["Lanes:a:Kind"] = "siblings",
+            ["Lanes:a:MinSpread"] = "-0.1",
+            ["Lanes:b:Kind"] = "nope",
+            ["Partition"] = "everyone",
+        }).Build();
+        var (options, errors) = OptionsReader.Read(config);
+
+        Assert.Null(options);
+        Assert.Equal(4, errors.Count);
+    }
+
+    [Fact]
+    public void The_shipped_config_file_is_valid_and_has_one_lane_of_each_kind()
+    {
+        var file = Path.Combine(AppContext.BaseDirectory, "config", "rewriteproxy.json");
+        var config = new ConfigurationBuilder().AddJsonFile(file).Build();
+        var (options, errors) = OptionsReader.Read(config);
+
+        Assert.Empty(errors);
+        Assert.Contains(options!.Lanes.Values, l => l.Kind == LaneKind.Draft);
+        Assert.Contains(options.Lanes.Values, l => l.Kind == LaneKind.Siblings);
+    }
+
+    [Theory]
+    [InlineData("90s", 90)]
+    [InlineData("5m", 300)]
+    [InlineData("2h", 7200)]
+    [InlineData("7d", 604800)]
+    [InlineData("250ms", 0.25)]
+    [InlineData("00:01:40", 100)]
+    public void Durations_read_with_a_unit_or_as_a_timespan(string text, double seconds)
+    {
+        Assert.True(OptionsReader.TryParseDuration(text, out var value));
+        Assert.Equal(seconds, value.TotalSeconds, 6);
+    }
+}

@@ -13,6 +13,7 @@ public static class RootCommandFactory
             "then --Section:Key=value arguments.");
         root.Options.Add(Startup.ConfigFile);
         root.Subcommands.Add(ServeCommand.Create());
+        root.Subcommands.Add(HealthCommand.Create());
         // No command = serve.
         root.Options.Add(ServeCommand.Urls);
         root.TreatUnmatchedTokensAsErrors = false;

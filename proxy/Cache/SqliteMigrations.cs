@@ -1,0 +1,51 @@
+namespace RewriteProxy.Cache;
+
+/// <summary>Numbered schema migrations; <c>PRAGMA user_version</c> holds the last one applied. Append, never edit.</summary>
+public static class SqliteMigrations
+{
+    public static readonly string[] Steps =
+    [
+        // 1: entries
+        """
+        CREATE TABLE entries (
+            id                INTEGER PRIMARY KEY,
+            scope_key         TEXT    NOT NULL,
+            partition_hash    TEXT    NOT NULL,
+            lane              TEXT    NOT NULL,
+            question          TEXT    NOT NULL,
+            normalized        TEXT    NOT NULL,
+            vector            BLOB,
+            model_id          TEXT,
+            content           TEXT    NOT NULL,
+            scores            TEXT    NOT NULL,
+            response_model    TEXT,
+            prompt_tokens     INTEGER NOT NULL,
+            completion_tokens INTEGER NOT NULL,
+            created           INTEGER NOT NULL,
+            last_hit          INTEGER NOT NULL,
+            hit_count         INTEGER NOT NULL DEFAULT 0
+        );
+        CREATE UNIQUE INDEX entries_exact ON entries (scope_key, normalized);
+        CREATE INDEX entries_last_hit ON entries (last_hit);
+        CREATE INDEX entries_created ON entries (created);
+        CREATE INDEX entries_lane ON entries (lane);
+        """,
+        // 2: event log of guarded rewrites and anchor-guard refusals
+        """
+        CREATE TABLE events (
+            id             INTEGER PRIMARY KEY,
+            at             INTEGER NOT NULL,
+            lane           TEXT    NOT NULL,
+            partition_hash TEXT    NOT NULL,
+            kind           TEXT    NOT NULL,
+            question       TEXT    NOT NULL,
+            candidate      TEXT    NOT NULL,
+            score          REAL    NOT NULL,
+            verdict        TEXT    NOT NULL,
+            reason         TEXT
+        );
+        CREATE INDEX events_at ON events (at);
+        CREATE INDEX events_lane_at ON events (lane, at);
+        """,
+    ];
+}

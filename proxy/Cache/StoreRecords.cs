@@ -1,0 +1,67 @@
+namespace RewriteProxy.Cache;
+
+/// <summary>A rewrite accepted on a miss, about to be stored.</summary>
+public sealed record NewEntry(
+    string ScopeKey,
+    string PartitionHash,
+    string Lane,
+    string Question,
+    string Normalized,
+    float[]? Vector,
+    string? ModelId,
+    string Content,
+    EntryScores Scores,
+    string? ResponseModel,
+    int PromptTokens,
+    int CompletionTokens,
+    DateTimeOffset Created);
+
+/// <summary>The drift scores of what an entry holds, so a hit reports what the miss reported.</summary>
+/// <param name="MaxDrift">Largest drift among the accepted rewrites; null when nothing was scored.</param>
+/// <param name="Dropped">How many rewrites the guard dropped on the miss.</param>
+/// <param name="Drifts">Drift of each accepted line (siblings) or of the draft, in order.</param>
+public sealed record EntryScores(double? MaxDrift, int Dropped, double[] Drifts);
+
+/// <summary>One stored entry as read back (the vector stays in the index).</summary>
+public sealed record StoredEntry
+{
+    public long Id { get; init; }
+    public string ScopeKey { get; init; } = "";
+    public string PartitionHash { get; init; } = "";
+    public string Lane { get; init; } = "";
+    public string Question { get; init; } = "";
+    public string Normalized { get; init; } = "";
+    public string Content { get; init; } = "";
+    public string Scores { get; init; } = "{}";
+    public string? ResponseModel { get; init; }
+    public string? ModelId { get; init; }
+    public long PromptTokens { get; init; }
+    public long CompletionTokens { get; init; }
+    public long Created { get; init; }
+    public long LastHit { get; init; }
+    public long HitCount { get; init; }
+}
+
+/// <summary>A row the vector index is rebuilt from.</summary>
+public sealed record IndexRow(long Id, string ScopeKey, float[] Vector);
+
+/// <summary>One event-log row: a guarded rewrite or an anchor-guard refusal. Never a credential.</summary>
+/// <param name="Kind">rewrite (a judged draft or sibling) | guard (a semantic candidate refused by the anchor guard).</param>
+/// <param name="Candidate">The rewrite, or the cached question that was refused.</param>
+/// <param name="Score">Drift of a rewrite, or similarity of a refused candidate.</param>
+/// <param name="Verdict">accepted | dropped (rewrite) or refused (guard).</param>
+public sealed record EventRow(DateTimeOffset At, string Lane, string PartitionHash, string Kind, string Question, string Candidate,
+    double Score, string Verdict, string? Reason);
+
+/// <summary>Which entries a purge deletes; null fields match everything, but at least one must be set.</summary>
+public sealed record PurgeFilter(string? Lane = null, string? PartitionHash = null, TimeSpan? OlderThan = null, long? Id = null)
+{
+    public bool IsEmpty => Lane is null && PartitionHash is null && OlderThan is null && Id is null;
+}
+
+public sealed record LaneStats(string Lane, long Entries, long Hits, long TokensSaved);
+
+public sealed record StoreStats(IReadOnlyList<LaneStats> Lanes, long FileBytes, IReadOnlyDictionary<string, IReadOnlyDictionary<string, long>> DropsByLane);
+
+/// <summary>The store could not do what was asked (locked, read-only, full, corrupt): the caller fails open.</summary>
+public sealed class StoreException(string message, Exception? inner = null) : Exception(message, inner);

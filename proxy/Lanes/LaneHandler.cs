@@ -1,0 +1,357 @@
+using System.Globalization;
+using System.Text.Json;
+using Microsoft.AspNetCore.Http;
+using Microsoft.Extensions.Hosting;
+using Microsoft.Extensions.Logging;
+using RewriteProxy.Cache;
+using RewriteProxy.Forwarding;
+using RewriteProxy.Guard;
+using RewriteProxy.Hosting;
+using RewriteProxy.Telemetry;
+using RewriteProxy.Wire;
+
+namespace RewriteProxy.Lanes;
+
+/// <summary>
+/// One lane call: read the chat request, find the question and its scope, look up exact then semantic, and on a miss
+/// make one (coalesced) upstream call, guard its rewrite, store what was accepted and answer in JSON or SSE.
+/// Any failure of the cache side forwards the call to the upstream untouched.
+/// </summary>
+public sealed class LaneHandler(
+    RewriteProxyOptions options,
+    SemanticCache cache,
+    LaneUpstream upstream,
+    Passthrough passthrough,
+    FailOpenLog failOpen,
+    IHostApplicationLifetime lifetime,
+    ILogger<LaneHandler> log)
+{
+    /// <summary>
+    /// Longest a miss's response waits for its entry to be committed. Waiting is what makes an answered miss survive a
+    /// crash; the bound keeps a slow disk from holding answers back (the entry still lands, later).
+    /// </summary>
+    static readonly TimeSpan CommitWait = TimeSpan.FromSeconds(1);
+
+    readonly Coalescer<MissOutcome> _coalescer = new();
+
+    public static class Header
+    {
+        public const string Cache = "X-Rewrite-Cache";
+        public const string Similarity = "X-Rewrite-Similarity";
+        public const string Drift = "X-Rewrite-Drift";
+        public const string Dropped = "X-Rewrite-Dropped";
+        public const string SavedTokens = "X-Rewrite-Saved-Tokens";
+        public const string Bypass = "X-Rewrite-Bypass";
+        public const string Mode = "X-Rewrite-Mode";
+        public const string Fallback = "X-Rewrite-Fallback";
+        public const string Lane = "X-Rewrite-Lane";
+    }
+
+    public async Task HandleAsync(HttpContext context, string laneName)
+    {
+        if (!options.Lanes.TryGetValue(laneName, out var lane))
+        {
+            var names = options.Lanes.Count == 0 ? "none" : string.Join(", ", options.Lanes.Keys.Order(StringComparer.Ordinal));
+            await ErrorResponse.WriteAsync(context, 404, $"Unknown lane '{laneName}'. Configured lanes: {names}.",
+                "invalid_request_error", "unknown_lane");
+            return;
+        }
+
+        var body = await ReadBodyAsync(context);
+        if (body is null) return;
+
+        ChatRequest request;
+        try
+        {
+            request = ChatRequest.Parse(body);
+        }
+        catch (ChatRequestException e)
+        {
+            await ErrorResponse.WriteAsync(context, 400, e.Message, "invalid_request_error", "invalid_request");
+            return;
+        }
+
+        var directives = CacheDirectives.Parse(context.Request.Headers.CacheControl);
+        var extraction = QuestionExtractor.Extract(request, lane);
+        if (extraction.Site is not { } site)
+        {
+            context.Response.Headers[Header.Bypass] = extraction.BypassReason;
+            await BypassAsync(context, lane, body);
+            return;
+        }
+
+        var partition = ScopeKey.Partition(options.Partition, context.Request.Headers.Authorization);
+        var scope = ScopeKey.Compute(lane, request, site, partition);
+        var normalized = QuestionText.Normalize(site.Question);
+
+        if (!directives.NoCache && !directives.NoStore)
+        {
+            LookupResult found;
+            try
+            {
+                found = cache.Lookup(lane, scope, site.Question, normalized, partition);
+            }
+            catch (CacheFailure f)
+            {
+                failOpen.Record(f.Reason, f.Message);
+                await BypassAsync(context, lane, body);
+                return;
+            }
+            if (found.Kind != LookupKind.Miss)
+            {
+                await WriteHitAsync(context, lane, request, found);
+                return;
+            }
+        }
+
+        var miss = new Miss(lane, request, site, scope, normalized, partition, context.Request.Headers, Store: !directives.NoStore);
+        MissOutcome outcome;
+        var joined = false;
+        try
+        {
+            var work = directives.NoCache || directives.NoStore
+                ? RunMissAsync(miss)
+                : _coalescer.RunAsync(scope + "\n" + normalized, () => RunMissAsync(miss), out joined);
+            // A caller that joined another's call waits no longer than its own call could have taken.
+            outcome = await work.WaitAsync(options.Upstream.Timeout + CommitWait, context.RequestAborted);
+        }
+        catch (TimeoutException)
+        {
+            outcome = new MissOutcome.Error(504, "upstream_error", "upstream_timeout", "The upstream did not answer within Upstream:Timeout.");
+        }
+        if (joined) ProxyMetrics.Coalesced.WithLabels(lane.Name).Inc();
+        var result = directives.NoStore ? "bypass" : "miss";
+        ProxyMetrics.Lookups.WithLabels(lane.Name, result).Inc();
+        context.Response.Headers[Header.Cache] = result;
+        await WriteOutcomeAsync(context, request, outcome);
+    }
+
+    /// <summary>Reads the body up to Limits:MaxRequestBytes; writes 413 and returns null above it.</summary>
+    async Task<byte[]?> ReadBodyAsync(HttpContext context)
+    {
+        var max = options.Limits.MaxRequestBytes;
+        if (context.Request.ContentLength > max)
+        {
+            await TooLargeAsync(context, max);
+            return null;
+        }
+        using var buffer = new MemoryStream();
+        var chunk = new byte[16 * 1024];
+        int read;
+        try
+        {
+            while ((read = await context.Request.Body.ReadAsync(chunk, context.RequestAborted)) > 0)
+            {
+                if (buffer.Length + read > max)
+                {
+                    await TooLargeAsync(context, max);
+                    return null;
+                }
+                buffer.Write(chunk, 0, read);
+            }
+        }
+        catch (Exception e) when (e is IOException or Microsoft.AspNetCore.Http.BadHttpRequestException)
+        {
+            await ErrorResponse.WriteAsync(context, 400, "The request body could not be read.", "invalid_request_error", "bad_request_body");
+            return null;
+        }
+        return buffer.ToArray();
+    }
+
+    static Task TooLargeAsync(HttpContext context, long max) => ErrorResponse.WriteAsync(context, 413,
+        $"The request body is larger than Limits:MaxRequestBytes ({max} bytes).", "invalid_request_error", "request_too_large");
+
+    /// <summary>Forwards the call untouched, uncached (a bypass, or a fail-open).</summary>
+    async Task BypassAsync(HttpContext context, LaneOptions lane, byte[] body)
+    {
+        ProxyMetrics.Lookups.WithLabels(lane.Name, "bypass").Inc();
+        context.Response.Headers[Header.Cache] = "bypass";
+        context.Request.Headers.Remove(Header.Lane);
+        context.Request.Body = new MemoryStream(body, writable: false);
+        context.Request.ContentLength = body.Length;
+        await passthrough.ForwardAsync(context, "/chat/completions");
+    }
+
+    async Task WriteHitAsync(HttpContext context, LaneOptions lane, ChatRequest request, LookupResult found)
+    {
+        var entry = found.Entry!;
+        var scores = ReadScores(entry.Scores);
+        var semantic = found.Kind == LookupKind.HitSemantic;
+        var label = semantic ? "hit_semantic" : "hit_exact";
+        ProxyMetrics.Lookups.WithLabels(lane.Name, label).Inc();
+        var saved = entry.PromptTokens + entry.CompletionTokens;
+        ProxyMetrics.TokensSaved.WithLabels(lane.Name).Inc(saved);
+        if (semantic) ProxyMetrics.HitSimilarity.WithLabels(lane.Name).Observe(found.Similarity!.Value);
+        cache.Store.RecordHit(entry.Id, DateTimeOffset.UtcNow);
+
+        var headers = context.Response.Headers;
+        headers[Header.Cache] = semantic ? "hit-semantic" : "hit-exact";
+        if (semantic) headers[Header.Similarity] = Format(found.Similarity!.Value);
+        if (scores.MaxDrift is { } drift) headers[Header.Drift] = Format(drift);
+        headers[Header.Dropped] = scores.Dropped.ToString(CultureInfo.InvariantCulture);
+        headers[Header.SavedTokens] = saved.ToString(CultureInfo.InvariantCulture);
+        var completion = CompletionWriter.FromEntry(entry.ResponseModel ?? request.Model, entry.Content,
+            (int)entry.PromptTokens, (int)entry.CompletionTokens);
+        await CompletionWriter.WriteAsync(context, completion, request.Stream, request.IncludeUsage);
+    }
+
+    static EntryScores ReadScores(string json)
+    {
+        try
+        {
+            return JsonSerializer.Deserialize<EntryScores>(json) ?? new EntryScores(null, 0, []);
+        }
+        catch (JsonException)
+        {
+            return new EntryScores(null, 0, []);
+        }
+    }
+
+    static string Format(double value) => value.ToString("0.0000", CultureInfo.InvariantCulture);
+
+    sealed record Miss(LaneOptions Lane, ChatRequest Request, QuestionSite Site, string Scope, string Normalized, string Partition,
+        IHeaderDictionary Headers, bool Store);
+
+    async Task<MissOutcome> RunMissAsync(Miss miss)
+    {
+        var lane = miss.Lane;
+        var body = miss.Request.UpstreamBody();
+        var dropped = 0;
+        for (var attempt = 1; ; attempt++)
+        {
+            var answer = await upstream.CallAsync(miss.Headers, body, lane.Name, lifetime.ApplicationStopping);
+            if (answer.Failure is not null)
+            {
+                var code = answer.Status == 504 ? "upstream_timeout" : "upstream_unreachable";
+                var message = answer.Status == 504 ? "The upstream did not answer within Upstream:Timeout." : $"The upstream call failed: {answer.Failure}.";
+                return new MissOutcome.Error(answer.Status, "upstream_error", code, message);
+            }
+            if (!answer.Succeeded) return new MissOutcome.Relayed(answer);
+
+            ChatCompletion completion;
+            try
+            {
+                completion = ChatCompletion.Parse(answer.Body);
+            }
+            catch (FormatException e)
+            {
+                return new MissOutcome.Error(502, "upstream_error", "upstream_invalid_response", $"The upstream answer cannot be used: {e.Message}.");
+            }
+
+            try
+            {
+                if (lane.Kind == LaneKind.Siblings) return await GuardSiblingsAsync(miss, completion, answer);
+                var (outcome, retry) = await GuardDraftAsync(miss, completion, answer, attempt, dropped);
+                if (!retry) return outcome!;
+                dropped++;
+            }
+            catch (CacheFailure f)
+            {
+                // The guard cannot run: answer as if there were no cache, and store nothing unguarded.
+                failOpen.Record(f.Reason, f.Message);
+                return new MissOutcome.Answer(completion.Body, null, 0, false, answer.Headers);
+            }
+        }
+    }
+
+    async Task<MissOutcome> GuardSiblingsAsync(Miss miss, ChatCompletion completion, UpstreamAnswer answer)
+    {
+        var lane = miss.Lane;
+        var candidates = SiblingParser.Parse(completion.Content, lane.Candidates);
+        var vectors = cache.Embed([miss.Site.Question, .. candidates]);
+        var judgement = SiblingGuard.Judge(vectors[0], candidates, vectors[1..], completion.Content, lane);
+        Record(miss, judgement.Kept);
+        Record(miss, judgement.Dropped);
+        var content = judgement.Content;
+        var scores = new EntryScores(judgement.MaxKeptDrift, judgement.Dropped.Count, judgement.Kept.Select(k => k.Drift).ToArray());
+        // Nothing kept is not worth keeping: the next call may well bring usable siblings.
+        if (miss.Store && content.Length > 0) await StoreAsync(miss, vectors[0], content, scores, completion);
+        var body = judgement.Enforced ? completion.WithContent(content) : completion.Body;
+        return new MissOutcome.Answer(body, judgement.MaxKeptDrift, judgement.Dropped.Count, !judgement.Enforced, answer.Headers);
+    }
+
+    async Task<(MissOutcome? Outcome, bool Retry)> GuardDraftAsync(Miss miss, ChatCompletion completion, UpstreamAnswer answer,
+        int attempt, int droppedBefore)
+    {
+        var lane = miss.Lane;
+        var vectors = cache.Embed([miss.Site.Question, completion.Content]);
+        var verdict = DraftGuard.Judge(vectors[0], vectors[1], completion.Content, lane);
+        Record(miss, [verdict]);
+        var dropped = droppedBefore + (verdict.Accepted ? 0 : 1);
+        switch (DraftGuard.Decide(verdict, attempt, lane))
+        {
+            case DraftDecision.Accept:
+                var scores = new EntryScores(verdict.Drift, dropped, [verdict.Drift]);
+                if (miss.Store) await StoreAsync(miss, vectors[0], completion.Content, scores, completion);
+                return (new MissOutcome.Answer(completion.Body, verdict.Accepted ? verdict.Drift : null, dropped,
+                    lane.Mode == GuardMode.Observe, answer.Headers), false);
+            case DraftDecision.Retry:
+                return (null, true);
+            case DraftDecision.Fallback:
+                // The question stands in for the draft: retrieval degrades to the plain question. Not cached.
+                return (new MissOutcome.Answer(completion.WithContent(miss.Site.Question), null, dropped, false,
+                    [.. answer.Headers, KeyValuePair.Create(Header.Fallback, new[] { "question" })]), false);
+            default:
+                return (new MissOutcome.Error(422, "invalid_request_error", "draft_drift",
+                    $"The draft drifted {Format(verdict.Drift)} from the question, above Lanes:{lane.Name}:MaxDrift = " +
+                    $"{lane.MaxDrift.ToString(CultureInfo.InvariantCulture)}."), false);
+        }
+    }
+
+    void Record(Miss miss, IReadOnlyList<JudgedRewrite> judged)
+    {
+        var lane = miss.Lane.Name;
+        foreach (var j in judged)
+        {
+            var verdict = j.Accepted ? "accepted" : "dropped";
+            ProxyMetrics.Drift.WithLabels(lane, verdict).Observe(j.Drift);
+            if (!j.Accepted) ProxyMetrics.Dropped.WithLabels(lane, j.Reason ?? "drift").Inc();
+            cache.Store.AppendEvent(new EventRow(DateTimeOffset.UtcNow, lane, miss.Partition, "rewrite", miss.Site.Question, j.Text,
+                j.Drift, verdict, j.Reason));
+        }
+    }
+
+    async Task StoreAsync(Miss miss, float[] questionVector, string content, EntryScores scores, ChatCompletion completion)
+    {
+        var entry = new NewEntry(miss.Scope, miss.Partition, miss.Lane.Name, miss.Site.Question, miss.Normalized, questionVector,
+            cache.Embedder.ModelId, content, scores, completion.Model, completion.PromptTokens, completion.CompletionTokens,
+            DateTimeOffset.UtcNow);
+        try
+        {
+            await cache.AddAsync(entry, lifetime.ApplicationStopping).WaitAsync(CommitWait);
+        }
+        catch (CacheFailure f)
+        {
+            failOpen.Record(f.Reason, f.Message);
+        }
+        catch (TimeoutException)
+        {
+            log.LogWarning("store: an entry took longer than {Ms} ms to commit; answered before it landed", CommitWait.TotalMilliseconds);
+        }
+    }
+
+    static async Task WriteOutcomeAsync(HttpContext context, ChatRequest request, MissOutcome outcome)
+    {
+        var headers = context.Response.Headers;
+        switch (outcome)
+        {
+            case MissOutcome.Answer a:
+                foreach (var (name, values) in a.UpstreamHeaders) headers[name] = values;
+                if (a.MaxDrift is { } drift) headers[Header.Drift] = Format(drift);
+                headers[Header.Dropped] = a.Dropped.ToString(CultureInfo.InvariantCulture);
+                if (a.Observed) headers[Header.Mode] = "observe";
+                await CompletionWriter.WriteAsync(context, a.Completion, request.Stream, request.IncludeUsage);
+                break;
+            case MissOutcome.Relayed r:
+                context.Response.StatusCode = r.Upstream.Status;
+                foreach (var (name, values) in r.Upstream.Headers) headers[name] = values;
+                headers.ContentType = "application/json";
+                context.Response.ContentLength = r.Upstream.Body.Length;
+                await context.Response.Body.WriteAsync(r.Upstream.Body, context.RequestAborted);
+                break;
+            case MissOutcome.Error e:
+                await ErrorResponse.WriteAsync(context, e.Status, e.Message, e.Type, e.Code);
+                break;
+        }
+    }
+}

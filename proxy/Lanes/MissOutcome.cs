@@ -1,0 +1,17 @@
+using System.Text.Json.Nodes;
+
+namespace RewriteProxy.Lanes;
+
+/// <summary>What a lane miss produced, shared by every caller coalesced onto it.</summary>
+public abstract record MissOutcome
+{
+    /// <summary>A completion to write (JSON or SSE), with the guard's headers.</summary>
+    public sealed record Answer(JsonObject Completion, double? MaxDrift, int Dropped, bool Observed,
+        IReadOnlyList<KeyValuePair<string, string[]>> UpstreamHeaders) : MissOutcome;
+
+    /// <summary>The upstream's own non-success answer, relayed as it came; never cached.</summary>
+    public sealed record Relayed(UpstreamAnswer Upstream) : MissOutcome;
+
+    /// <summary>An error of the proxy's making (502 invalid answer, 504 timeout, 422 rejected draft).</summary>
+    public sealed record Error(int Status, string Type, string Code, string Message) : MissOutcome;
+}

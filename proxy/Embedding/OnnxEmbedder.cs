@@ -1,0 +1,315 @@
+using System.Buffers;
+using System.Collections.Concurrent;
+using System.Diagnostics;
+using System.Numerics.Tensors;
+using Microsoft.Extensions.Logging;
+using Microsoft.ML.OnnxRuntime;
+using RewriteProxy.Hosting;
+using RewriteProxy.Telemetry;
+using SessionOptions = Microsoft.ML.OnnxRuntime.SessionOptions;
+
+namespace RewriteProxy.Embedding;
+
+/// <summary>
+/// Sentence vectors from a BERT-family ONNX model (default all-MiniLM-L6-v2): WordPiece ids, one model run per call,
+/// mean of the last hidden state over the attended tokens, L2 normalisation. Safe for concurrent callers.
+/// </summary>
+public sealed class OnnxEmbedder : IEmbedder, IDisposable
+{
+    /// <summary>Pooling of token states into one vector; part of <see cref="ModelId"/>.</summary>
+    internal const string PoolingName = "mean";
+
+    const string InputIds = "input_ids";
+    const string AttentionMask = "attention_mask";
+    const string TokenTypeIds = "token_type_ids";
+    const string HiddenState = "last_hidden_state";
+
+    /// <summary>Guards the division of a vector by its length; the value sentence-transformers' normalize uses (from memory).</summary>
+    const float NormFloor = 1e-12f;
+
+    readonly WordPieceEncoder encoder;
+    readonly SessionOptions sessionOptions;
+    readonly InferenceSession[] sessions;
+    readonly ConcurrentBag<InferenceSession> idle;
+    readonly SemaphoreSlim? turns;
+    readonly RunOptions runOptions = new();
+    readonly string[] inputNames;
+    readonly string[] outputNames;
+    readonly bool feedsTokenTypes;
+
+    OnnxEmbedder(WordPieceEncoder encoder, SessionOptions sessionOptions, InferenceSession[] sessions, string modelId,
+        string[] inputNames, string outputName)
+    {
+        this.encoder = encoder;
+        this.sessionOptions = sessionOptions;
+        this.sessions = sessions;
+        idle = new ConcurrentBag<InferenceSession>(sessions);
+        turns = sessions.Length > 1 ? new SemaphoreSlim(sessions.Length, sessions.Length) : null;
+        ModelId = modelId;
+        this.inputNames = inputNames;
+        outputNames = [outputName];
+        feedsTokenTypes = inputNames.Contains(TokenTypeIds);
+    }
+
+    public string ModelId { get; }
+
+    public int Dimension { get; private set; }
+
+    /// <summary>Word pieces per text, [CLS] and [SEP] included.</summary>
+    public int MaxTokens => encoder.MaxTokens;
+
+    /// <summary>
+    /// Loads the model named by <paramref name="options"/> (or the packaged all-MiniLM-L6-v2), checks that it fits,
+    /// and runs it once so that the first real call is not the slow one.
+    /// </summary>
+    /// <exception cref="EmbedderLoadException">A file is missing or unreadable, or the model does not fit.</exception>
+    public static OnnxEmbedder Load(EmbeddingOptions options, ILogger? logger = null) =>
+        Load(options, DefaultSessions, logger);
+
+    /// <summary>Sessions kept by <see cref="Load(EmbeddingOptions, ILogger?)"/>; see notes/embedding.md for the measurement.</summary>
+    internal const int DefaultSessions = 1;
+
+    /// <summary>As <see cref="Load(EmbeddingOptions, ILogger?)"/> with <paramref name="sessionCount"/> sessions: 1 = one session
+    /// shared by every caller; more = a pool, each session with its share of the threads.</summary>
+    internal static OnnxEmbedder Load(EmbeddingOptions options, int sessionCount, ILogger? logger = null)
+    {
+        ArgumentOutOfRangeException.ThrowIfLessThan(sessionCount, 1);
+        long started = Stopwatch.GetTimestamp();
+        EmbeddingModelSource source = EmbeddingModelSource.Resolve(options);
+        WordPieceEncoder encoder = WordPieceEncoder.Load(new MemoryStream(source.Vocabulary, writable: false), source.VocabularyName, options.MaxTokens);
+
+        int threads = options.Threads > 0 ? options.Threads : Environment.ProcessorCount;
+        var sessionOptions = new SessionOptions
+        {
+            GraphOptimizationLevel = GraphOptimizationLevel.ORT_ENABLE_ALL,
+            ExecutionMode = ExecutionMode.ORT_SEQUENTIAL,
+            IntraOpNumThreads = Math.Max(1, threads / sessionCount),
+            InterOpNumThreads = 1,
+        };
+        var sessions = new InferenceSession[sessionCount];
+        try
+        {
+            for (int i = 0; i < sessionCount; i++)
+                sessions[i] = CreateSession(source, sessionOptions);
+            (string[] inputs, string output) = CheckShape(sessions[0], source.ModelName);
+            var embedder = new OnnxEmbedder(encoder, sessionOptions, sessions, source.ModelId(PoolingName), inputs, output);
+            embedder.Dimension = embedder.ProbeDimension(source.ModelName);
+            logger?.LogInformation(
+                "Embedding model {Model} loaded in {Milliseconds} ms: id {ModelId}, {Dimension} dimensions, {Sessions} session(s) x {Threads} thread(s), {MaxTokens} word pieces",
+                source.ModelName, (long)Stopwatch.GetElapsedTime(started).TotalMilliseconds, embedder.ModelId,
+                embedder.Dimension, sessionCount, sessionOptions.IntraOpNumThreads, encoder.MaxTokens);
+            return embedder;
+        }
+        catch
+        {
+            foreach (InferenceSession? session in sessions)
+                session?.Dispose();
+            sessionOptions.Dispose();
+            throw;
+        }
+    }
+
+    public float[] Embed(string text) => Embed([text])[0];
+
+    public float[][] Embed(IReadOnlyList<string> texts)
+    {
+        ArgumentNullException.ThrowIfNull(texts);
+        var vectors = new float[texts.Count][];
+        var pieces = new IReadOnlyList<int>?[texts.Count];
+        int rows = 0, longest = 0;
+        for (int i = 0; i < texts.Count; i++)
+        {
+            pieces[i] = encoder.Encode(texts[i] ?? "");
+            if (pieces[i] is { } ids)
+            {
+                rows++;
+                longest = Math.Max(longest, ids.Count);
+            }
+            else
+            {
+                vectors[i] = new float[Dimension];
+            }
+        }
+        if (rows > 0)
+            Run(pieces, rows, longest, vectors);
+        return vectors;
+    }
+
+    /// <summary>One model run over the texts that have pieces, padded to the longest; fills their places in <paramref name="vectors"/>.</summary>
+    void Run(IReadOnlyList<int>?[] pieces, int rows, int longest, float[][] vectors)
+    {
+        int cells = rows * longest;
+        long[] ids = ArrayPool<long>.Shared.Rent(cells);
+        long[] mask = ArrayPool<long>.Shared.Rent(cells);
+        long[]? types = feedsTokenTypes ? ArrayPool<long>.Shared.Rent(cells) : null;
+        try
+        {
+            long padding = encoder.PaddingId;
+            int row = 0;
+            foreach (IReadOnlyList<int>? textPieces in pieces)
+            {
+                if (textPieces is null)
+                    continue;
+                int offset = row * longest;
+                for (int t = 0; t < textPieces.Count; t++)
+                {
+                    ids[offset + t] = textPieces[t];
+                    mask[offset + t] = 1;
+                }
+                ids.AsSpan(offset + textPieces.Count, longest - textPieces.Count).Fill(padding);
+                mask.AsSpan(offset + textPieces.Count, longest - textPieces.Count).Clear();
+                row++;
+            }
+            types?.AsSpan(0, cells).Clear();
+
+            long[] shape = [rows, longest];
+            using var inputs = new InputValues(inputNames.Length);
+            for (int i = 0; i < inputNames.Length; i++)
+            {
+                long[] data = inputNames[i] switch { InputIds => ids, AttentionMask => mask, _ => types! };
+                inputs.Values[i] = OrtValue.CreateTensorValueFromMemory(OrtMemoryInfo.DefaultInstance, data.AsMemory(0, cells), shape);
+            }
+
+            InferenceSession session = TakeSession();
+            try
+            {
+                long started = Stopwatch.GetTimestamp();
+                using IDisposableReadOnlyCollection<OrtValue> outputs = session.Run(runOptions, inputNames, inputs.Values, outputNames);
+                ProxyMetrics.EmbedDuration.Observe(Stopwatch.GetElapsedTime(started).TotalSeconds);
+                Pool(outputs[0], pieces, longest, vectors);
+            }
+            finally
+            {
+                ReturnSession(session);
+            }
+        }
+        finally
+        {
+            ArrayPool<long>.Shared.Return(ids);
+            ArrayPool<long>.Shared.Return(mask);
+            if (types is not null)
+                ArrayPool<long>.Shared.Return(types);
+        }
+    }
+
+    /// <summary>Mean of the hidden states of each text's own tokens (padding is masked out), then L2 normalisation.</summary>
+    void Pool(OrtValue hidden, IReadOnlyList<int>?[] pieces, int longest, float[][] vectors)
+    {
+        ReadOnlySpan<float> states = hidden.GetTensorDataAsSpan<float>();
+        int dimension = (int)hidden.GetTensorTypeAndShape().Shape[2];
+        int row = 0;
+        for (int i = 0; i < pieces.Length; i++)
+        {
+            if (pieces[i] is not { } textPieces)
+                continue;
+            var vector = new float[dimension];
+            ReadOnlySpan<float> rowStates = states.Slice(row * longest * dimension, textPieces.Count * dimension);
+            for (int t = 0; t < textPieces.Count; t++)
+                TensorPrimitives.Add(vector, rowStates.Slice(t * dimension, dimension), vector);
+            TensorPrimitives.Divide(vector, textPieces.Count, vector);
+            float norm = TensorPrimitives.Norm(vector);
+            TensorPrimitives.Divide(vector, MathF.Max(norm, NormFloor), vector);
+            vectors[i] = vector;
+            row++;
+        }
+    }
+
+    InferenceSession TakeSession()
+    {
+        if (turns is null)
+            return sessions[0];
+        turns.Wait();
+        idle.TryTake(out InferenceSession? session);
+        return session!;
+    }
+
+    void ReturnSession(InferenceSession session)
+    {
+        if (turns is null)
+            return;
+        idle.Add(session);
+        turns.Release();
+    }
+
+    static InferenceSession CreateSession(EmbeddingModelSource source, SessionOptions options)
+    {
+        try
+        {
+            return new InferenceSession(source.Model, options);
+        }
+        catch (OnnxRuntimeException ex)
+        {
+            throw new EmbedderLoadException($"Embedding model '{source.ModelName}' is not a loadable ONNX model: {WordPieceEncoder.FirstLine(ex.Message)}", ex);
+        }
+    }
+
+    /// <summary>The inputs to feed (in the model's order) and the output to pool, or why the model does not fit.</summary>
+    static (string[] Inputs, string Output) CheckShape(InferenceSession session, string modelName)
+    {
+        IReadOnlyDictionary<string, NodeMetadata> inputs = session.InputMetadata;
+        foreach (string required in (string[])[InputIds, AttentionMask])
+        {
+            if (!inputs.ContainsKey(required))
+                throw new EmbedderLoadException($"Embedding model '{modelName}' has no input '{required}' (it has {string.Join(", ", inputs.Keys)}); a BERT-family model is expected.");
+        }
+        foreach ((string name, NodeMetadata meta) in inputs)
+        {
+            if (name is not (InputIds or AttentionMask or TokenTypeIds))
+                throw new EmbedderLoadException($"Embedding model '{modelName}' needs input '{name}', which a BERT-family model does not have (expected {InputIds}, {AttentionMask}[, {TokenTypeIds}]).");
+            if (meta.ElementDataType != Microsoft.ML.OnnxRuntime.Tensors.TensorElementType.Int64 || meta.Dimensions.Length != 2)
+                throw new EmbedderLoadException($"Embedding model '{modelName}' input '{name}' is {meta.ElementDataType} of rank {meta.Dimensions.Length}; expected Int64 of rank 2 (batch, tokens).");
+        }
+
+        IReadOnlyDictionary<string, NodeMetadata> outputs = session.OutputMetadata;
+        if (outputs.Count == 0)
+            throw new EmbedderLoadException($"Embedding model '{modelName}' has no output.");
+        string output = outputs.ContainsKey(HiddenState) ? HiddenState : outputs.Keys.First();
+        NodeMetadata outputMeta = outputs[output];
+        if (outputMeta.ElementDataType != Microsoft.ML.OnnxRuntime.Tensors.TensorElementType.Float || outputMeta.Dimensions.Length != 3)
+            throw new EmbedderLoadException($"Embedding model '{modelName}' output '{output}' is {outputMeta.ElementDataType} of rank {outputMeta.Dimensions.Length}; expected Float of rank 3 (batch, tokens, hidden).");
+
+        return (inputs.Keys.ToArray(), output);
+    }
+
+    /// <summary>Runs the model once (warming it up) and returns the length of its vectors.</summary>
+    int ProbeDimension(string modelName)
+    {
+        float[] probe;
+        try
+        {
+            const string ProbeText = "dimension probe";
+            IReadOnlyList<int> pieces = encoder.Encode(ProbeText)!;
+            var vectors = new float[1][];
+            Run([pieces], rows: 1, longest: pieces.Count, vectors);
+            probe = vectors[0];
+        }
+        catch (OnnxRuntimeException ex)
+        {
+            throw new EmbedderLoadException($"Embedding model '{modelName}' fails on a one-sentence batch: {WordPieceEncoder.FirstLine(ex.Message)}", ex);
+        }
+        if (probe.Length == 0)
+            throw new EmbedderLoadException($"Embedding model '{modelName}' gives vectors of length 0.");
+        return probe.Length;
+    }
+
+    public void Dispose()
+    {
+        foreach (InferenceSession session in sessions)
+            session.Dispose();
+        sessionOptions.Dispose();
+        runOptions.Dispose();
+        turns?.Dispose();
+    }
+
+    /// <summary>The OrtValues of one run, disposed together.</summary>
+    readonly struct InputValues(int count) : IDisposable
+    {
+        public OrtValue[] Values { get; } = new OrtValue[count];
+
+        public void Dispose()
+        {
+            foreach (OrtValue? value in Values)
+                value?.Dispose();
+        }
+    }
+}

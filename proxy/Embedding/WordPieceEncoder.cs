@@ -1,0 +1,71 @@
+using Microsoft.ML.Tokenizers;
+
+namespace RewriteProxy.Embedding;
+
+/// <summary>Text to the word-piece ids a BERT-family model reads: [CLS], pieces, [SEP], truncated to a limit.</summary>
+internal sealed class WordPieceEncoder
+{
+    readonly BertTokenizer tokenizer;
+
+    WordPieceEncoder(BertTokenizer tokenizer, int maxTokens)
+    {
+        this.tokenizer = tokenizer;
+        MaxTokens = maxTokens;
+    }
+
+    /// <summary>Word pieces per text, [CLS] and [SEP] included.</summary>
+    public int MaxTokens { get; }
+
+    public int PaddingId => tokenizer.PaddingTokenId;
+
+    /// <summary>Reads a WordPiece vocabulary (one piece a line). Throws <see cref="EmbedderLoadException"/> if it is not one.</summary>
+    public static WordPieceEncoder Load(Stream vocabulary, string vocabularyName, int maxTokens)
+    {
+        // [CLS] and [SEP] take two of the places.
+        const int SpecialTokens = 2;
+        if (maxTokens <= SpecialTokens)
+            throw new EmbedderLoadException($"Embedding:MaxTokens is {maxTokens}; it must be more than {SpecialTokens} ([CLS] and [SEP] are counted).");
+        BertTokenizer tokenizer;
+        try
+        {
+            // Basic tokenization is BertTextNormalizer's job (see there why); the tokenizer only splits on spaces and
+            // runs WordPiece.
+            tokenizer = BertTokenizer.Create(vocabulary, new BertOptions
+            {
+                ApplyBasicTokenization = false,
+                LowerCaseBeforeTokenization = false,
+                RemoveNonSpacingMarks = false,
+            });
+        }
+        catch (Exception ex) when (ex is not OutOfMemoryException)
+        {
+            throw new EmbedderLoadException($"Embedding vocabulary '{vocabularyName}' is not a WordPiece vocabulary: {FirstLine(ex.Message)}", ex);
+        }
+        return new WordPieceEncoder(tokenizer, maxTokens);
+    }
+
+    /// <summary>The ids of one text, or null when the text holds nothing to embed (empty, whitespace, control characters).</summary>
+    public IReadOnlyList<int>? Encode(string text)
+    {
+        if (string.IsNullOrWhiteSpace(text))
+            return null;
+        string normalized = BertTextNormalizer.Normalize(text);
+        if (string.IsNullOrWhiteSpace(normalized))
+            return null;
+        return tokenizer.EncodeToIds(normalized, MaxTokens, addSpecialTokens: true, out _, out _);
+    }
+
+    /// <summary>The normalized text and how many of its characters fit in <see cref="MaxTokens"/> (for tests).</summary>
+    internal (string Normalized, int CharsConsumed) Truncation(string text)
+    {
+        string normalized = BertTextNormalizer.Normalize(text);
+        tokenizer.EncodeToIds(normalized, MaxTokens, addSpecialTokens: true, out _, out int consumed);
+        return (normalized, consumed);
+    }
+
+    internal static string FirstLine(string message)
+    {
+        int end = message.IndexOfAny(['\r', '\n']);
+        return (end < 0 ? message : message[..end]).Trim();
+    }
+}

@@ -1,0 +1,112 @@
+using System.Text;
+
+namespace RewriteProxy.Tests.Embedding;
+
+/// <summary>
+/// Writes tiny ONNX models byte by byte, so that load errors can be tested against real ONNX files without shipping
+/// any. Field numbers follow onnx.proto of the ONNX project (from memory; ONNX Runtime loading the result confirms them).
+/// </summary>
+internal static class TinyOnnxModel
+{
+    const int Float = 1;
+    const int Int64 = 7;
+
+    /// <summary>One float input [batch, 3] passed through an Identity node.</summary>
+    public static byte[] Identity(string input, string output) =>
+        Model(Graph(
+            Node("Identity", [input], [output], []),
+            [ValueInfo(input, Float, "batch", 3)],
+            [ValueInfo(output, Float, "batch", 3)]));
+
+    /// <summary>BERT's inputs, but the output is input_ids cast to float: rank 2, where a hidden state has rank 3.</summary>
+    public static byte[] IdsToFloatMatrix() =>
+        Model(Graph(
+            Node("Cast", ["input_ids"], ["embedding"], [IntAttribute("to", Float)]),
+            [ValueInfo("input_ids", Int64, "batch", "tokens"), ValueInfo("attention_mask", Int64, "batch", "tokens")],
+            [ValueInfo("embedding", Float, "batch", "tokens")]));
+
+    static byte[] Model(byte[] graph)
+    {
+        var model = new Proto();
+        model.Varint(1, 8);                                  // ir_version
+        model.Bytes(8, new Proto().Varint(2, 13).ToArray()); // opset_import { version: 13 }
+        model.Bytes(7, graph);                               // graph
+        return model.ToArray();
+    }
+
+    static byte[] Graph(byte[] node, byte[][] inputs, byte[][] outputs)
+    {
+        var graph = new Proto();
+        graph.Bytes(1, node);
+        graph.Text(2, "tiny");
+        foreach (byte[] input in inputs)
+            graph.Bytes(11, input);
+        foreach (byte[] output in outputs)
+            graph.Bytes(12, output);
+        return graph.ToArray();
+    }
+
+    static byte[] Node(string op, string[] inputs, string[] outputs, byte[][] attributes)
+    {
+        var node = new Proto();
+        foreach (string input in inputs)
+            node.Text(1, input);
+        foreach (string output in outputs)
+            node.Text(2, output);
+        node.Text(4, op);
+        foreach (byte[] attribute in attributes)
+            node.Bytes(5, attribute);
+        return node.ToArray();
+    }
+
+    static byte[] IntAttribute(string name, long value) =>
+        new Proto().Text(1, name).Varint(3, (ulong)value).Varint(20, 2).ToArray(); // type INT = 2
+
+    static byte[] ValueInfo(string name, int elementType, params object[] dims)
+    {
+        var shape = new Proto();
+        foreach (object dim in dims)
+        {
+            var dimension = dim is string symbol ? new Proto().Text(2, symbol) : new Proto().Varint(1, (ulong)(int)dim);
+            shape.Bytes(1, dimension.ToArray());
+        }
+        var tensor = new Proto().Varint(1, (ulong)elementType).Bytes(2, shape.ToArray());
+        var type = new Proto().Bytes(1, tensor.ToArray());
+        return new Proto().Text(1, name).Bytes(2, type.ToArray()).ToArray();
+    }
+
+    /// <summary>Protocol Buffers wire format: varint (type 0) and length-delimited (type 2) fields only.</summary>
+    sealed class Proto
+    {
+        readonly MemoryStream bytes = new();
+
+        public Proto Varint(int field, ulong value)
+        {
+            Raw((ulong)(field << 3));
+            Raw(value);
+            return this;
+        }
+
+        public Proto Bytes(int field, byte[] value)
+        {
+            Raw((ulong)(field << 3 | 2));
+            Raw((ulong)value.Length);
+            bytes.Write(value);
+            return this;
+        }
+
+        public Proto Text(int field, string value) => Bytes(field, Encoding.UTF8.GetBytes(value));
+
+        public byte[] ToArray() => bytes.ToArray();
+
+        void Raw(ulong value)
+        {
+            while (value >= 0x80)
+            {
+                bytes.WriteByte((byte)(value | 0x80));
+                value >>= 7;
+            }
+            bytes.WriteByte((byte)value);
+        }
+    }
+}

@@ -43,6 +43,14 @@ public sealed partial class AnchorGuard
     /// <summary>Fewest words before a question can count as shouted ("Is ICU open?" is not).</summary>
     const int ShoutedMinWords = 3;
 
+    /// <summary>Shortest stem after a negative prefix that counts as a negated word ("unsafe" → "safe"; "unit" is no "it").</summary>
+    const int MinPrefixedStem = 4;
+
+    static readonly string[] NegativePrefixes = ["un", "non"];
+
+    /// <summary>Words that start like a negative prefix but are not a negation of their rest.</summary>
+    static readonly HashSet<string> NotNegatedByPrefix = new(StringComparer.Ordinal) { "unless", "under", "understand", "undergo", "uniform", "universe", "university", "unique", "united", "union", "nonetheless" };
+
     readonly AnchorAntonyms _antonyms;
 
     /// <summary>A guard over the embedded WordNet 3.0 antonym table.</summary>
@@ -86,7 +94,12 @@ public sealed partial class AnchorGuard
     static string? MissingIdentifier(Anchors from, Anchors other)
     {
         foreach (var id in from.Identifiers)
-            if (!other.Tokens.Contains(id)) return $"identifier '{id}' only in one question";
+        {
+            // A plural s does not make another name ("Saturday" / "Saturdays").
+            if (other.Tokens.Contains(id) || other.Tokens.Contains(id + "s")
+                || (id.Length > 2 && id[^1] == 's' && other.Tokens.Contains(id[..^1]))) continue;
+            return $"identifier '{id}' only in one question";
+        }
         foreach (var quote in from.Quotes)
             if (!other.Text.Contains(quote, StringComparison.Ordinal)) return $"quoted \"{quote}\" only in one question";
         return null;
@@ -98,6 +111,7 @@ public sealed partial class AnchorGuard
     /// </summary>
     string? Opposite(Anchors asked, Anchors cached)
     {
+        if ((NegatedByPrefix(asked, cached) ?? NegatedByPrefix(cached, asked)) is { } prefixed) return prefixed;
         foreach (var lemma in asked.Lemmas)
         {
             if (cached.LemmaSet.Contains(lemma)) continue;
@@ -105,6 +119,15 @@ public sealed partial class AnchorGuard
                 if (cached.LemmaSet.Contains(antonym) && !asked.LemmaSet.Contains(antonym))
                     return $"'{lemma}' asked, its antonym '{antonym}' cached";
         }
+        return null;
+    }
+
+    /// <summary>"unsafe" in one question and "safe" only in the other: WordNet lists few un-/non- opposites ("safe" has only "dangerous").</summary>
+    static string? NegatedByPrefix(Anchors from, Anchors other)
+    {
+        foreach (var stem in from.PrefixNegated)
+            if (other.Tokens.Contains(stem) && !from.Tokens.Contains(stem) && !other.PrefixNegated.Contains(stem))
+                return $"'{stem}' negated by a prefix in one question only";
         return null;
     }
 
@@ -152,6 +175,7 @@ public sealed partial class AnchorGuard
         var identifiers = new SortedSet<string>(StringComparer.Ordinal);
         var words = new HashSet<string>(StringComparer.Ordinal);
         var lemmas = new List<string>();
+        var prefixNegated = new List<string>();
         var negations = 0;
 
         for (var i = 0; i < tokens.Count; i++)
@@ -198,7 +222,7 @@ public sealed partial class AnchorGuard
             // "No. 5" is a number sign, not a negation.
             var numberSign = lower == "no" && token.End < text.Length && text[token.End] == '.'
                 && i + 1 < tokens.Count && char.IsDigit(tokens[i + 1].Raw[0]);
-            ReadWord(token, lower, shouted, !numberSign, ref negations, identifiers, words, lemmas);
+            ReadWord(token, lower, shouted, !numberSign, ref negations, identifiers, words, lemmas, prefixNegated);
             if (AnchorLexicon.FreeUnits.TryGetValue(token.Raw, out var freeUnit)) units.Add(freeUnit);
         }
 
@@ -216,7 +240,7 @@ public sealed partial class AnchorGuard
             text.ToLowerInvariant().Replace("\"", " ").Replace("“", " ").Replace("”", " ").Replace("‘", " ").Replace("’", " "), " ");
 
         return new Anchors(
-            [.. numbers], [.. units], [.. quantities], negations, [.. identifiers], [.. quotes], [.. lemmas], words, flatText);
+            [.. numbers], [.. units], [.. quantities], negations, [.. identifiers], [.. quotes], [.. lemmas], [.. prefixNegated], words, flatText);
     }
 
     static List<Token> Tokenize(string text)
@@ -258,7 +282,7 @@ public sealed partial class AnchorGuard
     }
 
     void ReadWord(Token token, string lower, bool shouted, bool mayNegate, ref int negations,
-        SortedSet<string> identifiers, HashSet<string> words, List<string> lemmas)
+        SortedSet<string> identifiers, HashSet<string> words, List<string> lemmas, List<string> prefixNegated)
     {
         var raw = token.Raw;
         var bare = lower.EndsWith("'s", StringComparison.Ordinal) ? lower[..^2] : lower;
@@ -279,6 +303,14 @@ public sealed partial class AnchorGuard
         if (!isUnit && !raw.StartsWith("I'", StringComparison.Ordinal)
             && (innerCapital || (!shouted && allCapitals) || (!shouted && capitalised && !token.SentenceStart)))
             identifiers.Add(Normalise(lower));
+
+        // Productive negative prefixes (common practice: un-, non-); a stem of fewer than MinPrefixedStem letters
+        // is more likely a word of its own ("unit", "until", "union") than a negated one.
+        var flat = Normalise(bare);
+        foreach (var prefix in NegativePrefixes)
+            if (flat.Length - prefix.Length >= MinPrefixedStem && flat.StartsWith(prefix, StringComparison.Ordinal)
+                && !NotNegatedByPrefix.Contains(flat))
+                prefixNegated.Add(flat[prefix.Length..]);
 
         // Contrast lemmas: the whole word first (WordNet has "nonsmoker", "unpaid"), its hyphen parts otherwise.
         var before = lemmas.Count;

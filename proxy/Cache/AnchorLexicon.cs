@@ -82,6 +82,7 @@ internal static class AnchorLexicon
         ("ml", "millilitre", "millilitres", "milliliter", "milliliters"),
         ("gal", "gallon", "gallons"),
         ("mph"),
+        ("m/s"),
         ("km/h", "kmh", "kph"),
         ("ms", "millisecond", "milliseconds"),
         ("s", "sec", "secs", "second", "seconds"),

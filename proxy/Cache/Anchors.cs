@@ -8,7 +8,7 @@ public sealed class Anchors
 {
     internal Anchors(
         string[] numbers, string[] units, string[] quantities, int negations, string[] identifiers,
-        string[] quotes, string[] lemmas, HashSet<string> tokens, string text)
+        string[] quotes, string[] lemmas, string[] prefixNegated, HashSet<string> tokens, string text)
     {
         Numbers = numbers;
         Units = units;
@@ -17,6 +17,7 @@ public sealed class Anchors
         Identifiers = identifiers;
         Quotes = quotes;
         Lemmas = lemmas;
+        PrefixNegated = prefixNegated;
         Tokens = tokens;
         LemmaSet = [.. lemmas];
         Text = text;
@@ -42,6 +43,9 @@ public sealed class Anchors
 
     /// <summary>Lemmas of the question's words that have an antonym in the table ("excluded" gives "exclude").</summary>
     public IReadOnlyList<string> Lemmas { get; }
+
+    /// <summary>Stems of words negated by a prefix ("unsafe" gives "safe").</summary>
+    public IReadOnlyList<string> PrefixNegated { get; }
 
     /// <summary>Every word and code, lower-case without separators: an identifier of the other question must be among them.</summary>
     internal HashSet<string> Tokens { get; }

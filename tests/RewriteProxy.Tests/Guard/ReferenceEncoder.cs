@@ -18,7 +18,7 @@ public sealed class ReferenceEncoder : IDisposable
     {
         float[][] vectors;
         lock (_gate) vectors = _encoder.Encode(texts);
-        // Normalise again so that cosine is a dot product whatever the package does (it normalises; this is cheap).
+        // Normalise here so that cosine is a dot product whether or not the package already does; it is cheap.
         foreach (var v in vectors)
         {
             var norm = TensorPrimitives.Norm<float>(v);

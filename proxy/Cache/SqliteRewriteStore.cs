@@ -25,6 +25,8 @@ public sealed class SqliteRewriteStore : IRewriteStore
     readonly EventsOptions _events;
     readonly ILogger _log;
     readonly string _connectionString;
+    /// <summary>Reads never create the file: a store deleted under us must not silently reappear empty from a read.</summary>
+    readonly string _readConnectionString;
     readonly Channel<WriteOp> _queue = Channel.CreateBounded<WriteOp>(new BoundedChannelOptions(QueueCapacity)
     {
         SingleReader = true,
@@ -57,6 +59,7 @@ public sealed class SqliteRewriteStore : IRewriteStore
             Pooling = true,
             DefaultTimeout = 5,
         }.ToString();
+        _readConnectionString = new SqliteConnectionStringBuilder(_connectionString) { Mode = SqliteOpenMode.ReadWrite }.ToString();
     }
 
     public void Open()
@@ -111,9 +114,9 @@ public sealed class SqliteRewriteStore : IRewriteStore
         }
     }
 
-    SqliteConnection Connect()
+    SqliteConnection Connect(bool create = true)
     {
-        var c = new SqliteConnection(_connectionString);
+        var c = new SqliteConnection(create ? _connectionString : _readConnectionString);
         c.Open();
         c.Execute("PRAGMA synchronous=NORMAL; PRAGMA busy_timeout=2000;");
         return c;
@@ -123,7 +126,7 @@ public sealed class SqliteRewriteStore : IRewriteStore
     {
         try
         {
-            using var c = Connect();
+            using var c = Connect(create: false);
             return read(c);
         }
         catch (SqliteException e)

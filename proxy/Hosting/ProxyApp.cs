@@ -7,7 +7,12 @@ using Microsoft.Extensions.Configuration;
 using Microsoft.Extensions.DependencyInjection;
 using Microsoft.Extensions.Logging;
 using Prometheus;
+using RewriteProxy.Cache;
+using RewriteProxy.Cli;
+using RewriteProxy.Embedding;
 using RewriteProxy.Forwarding;
+using RewriteProxy.Lanes;
+using RewriteProxy.Telemetry;
 using RewriteProxy.Wire;
 
 namespace RewriteProxy.Hosting;
@@ -46,12 +51,55 @@ public static class ProxyApp
         services.AddHttpForwarder();
         services.AddSingleton(_ => UpstreamClient.Create(options.Upstream));
         services.AddSingleton<Passthrough>();
+        services.AddSingleton<LaneUpstream>();
+        services.AddSingleton<LaneHandler>();
+        services.AddSingleton<FailOpenLog>();
+        services.AddSingleton<IEmbedder>(sp =>
+            CachingEmbedder.Over(OnnxEmbedder.Load(options.Embedding, sp.GetRequiredService<ILoggerFactory>().CreateLogger("embedding")),
+                options.Embedding.CacheSize));
+        services.AddSingleton(_ => new VectorIndex());
+        services.AddSingleton(_ => new AnchorGuard());
+        services.AddSingleton<IRewriteStore>(sp => new SqliteRewriteStore(options.Store, options.Events,
+            sp.GetRequiredService<ILoggerFactory>().CreateLogger("store")));
+        services.AddSingleton(sp => new SemanticCache(sp.GetRequiredService<IRewriteStore>(), sp.GetRequiredService<VectorIndex>(),
+            sp.GetRequiredService<IEmbedder>(), sp.GetRequiredService<AnchorGuard>(), options.Store,
+            sp.GetRequiredService<ILoggerFactory>().CreateLogger("cache")));
+        services.AddSingleton<EntryGauge>();
         overrides?.Invoke(services);
 
         var app = builder.Build();
+        StartCache(app, options);
         app.UseMiddleware<RequestLog>();
         MapEndpoints(app, options);
         return app;
+    }
+
+    /// <summary>Loads the model and opens the store before listening: a bad model or store path is one clear start-up error.</summary>
+    static void StartCache(WebApplication app, RewriteProxyOptions options)
+    {
+        var readiness = app.Services.GetRequiredService<Readiness>();
+        readiness.Expect("cache");
+        try
+        {
+            var cache = app.Services.GetRequiredService<SemanticCache>();
+            cache.Start();
+        }
+        catch (EmbedderLoadException e)
+        {
+            throw new StartupException($"embedding model: {e.Message}", e);
+        }
+        catch (StoreException e)
+        {
+            throw new StartupException($"store: {e.Message} (Store:Path)", e);
+        }
+        foreach (var lane in options.Lanes.Values)
+        {
+            ProxyMetrics.LaneMaxDrift.WithLabels(lane.Name).Set(lane.MaxDrift);
+            foreach (var result in new[] { "hit_exact", "hit_semantic", "miss", "bypass" })
+                ProxyMetrics.Lookups.WithLabels(lane.Name, result);
+        }
+        app.Services.GetRequiredService<EntryGauge>().Register();
+        readiness.Ready("cache");
     }
 
     static void MapEndpoints(WebApplication app, RewriteProxyOptions options)
@@ -68,8 +116,28 @@ public static class ProxyApp
         var metrics = app.MapMetrics("/metrics");
         if (options.Metrics.Port > 0) metrics.RequireHost($"*:{options.Metrics.Port}");
 
-        app.Map("/v1/{**rest}", (HttpContext context, Passthrough passthrough) =>
-            passthrough.ForwardAsync(context, context.Request.Path.Value!["/v1".Length..]));
+        app.MapPost("/lane/{name}/v1/chat/completions", (HttpContext context, string name, LaneHandler lanes) =>
+            lanes.HandleAsync(context, name));
+        app.Map("/lane/{name}/v1/{**rest}", async (HttpContext context, string name, Passthrough passthrough) =>
+        {
+            // A client whose base URL is a lane's may call other endpoints too; they pass through.
+            if (!options.Lanes.ContainsKey(name))
+            {
+                await ErrorResponse.WriteAsync(context, 404, $"Unknown lane '{name}'. Configured lanes: " +
+                    string.Join(", ", options.Lanes.Keys.Order(StringComparer.Ordinal)) + ".", "invalid_request_error", "unknown_lane");
+                return;
+            }
+            var path = context.Request.Path.Value!;
+            await passthrough.ForwardAsync(context, path[(path.IndexOf("/v1/", StringComparison.Ordinal) + "/v1".Length)..]);
+        });
+        app.Map("/v1/{**rest}", (HttpContext context, Passthrough passthrough, LaneHandler lanes) =>
+        {
+            var rest = context.Request.Path.Value!["/v1".Length..];
+            if (HttpMethods.IsPost(context.Request.Method) && rest == "/chat/completions"
+                && context.Request.Headers[LaneHandler.Header.Lane].ToString() is { Length: > 0 } lane)
+                return lanes.HandleAsync(context, lane);
+            return passthrough.ForwardAsync(context, rest);
+        });
 
         app.MapFallback((HttpContext context) => ErrorResponse.WriteAsync(context, StatusCodes.Status404NotFound,
             $"No route for {context.Request.Method} {context.Request.Path.Value}. RewriteProxy forwards /v1/... to the upstream " +

@@ -345,7 +345,6 @@ public sealed class LaneHandler(
             case MissOutcome.Relayed r:
                 context.Response.StatusCode = r.Upstream.Status;
                 foreach (var (name, values) in r.Upstream.Headers) headers[name] = values;
-                headers.ContentType = "application/json";
                 context.Response.ContentLength = r.Upstream.Body.Length;
                 await context.Response.Body.WriteAsync(r.Upstream.Body, context.RequestAborted);
                 break;

@@ -32,7 +32,7 @@ public sealed class LaneUpstream(HttpMessageInvoker client, RewriteProxyOptions 
     static readonly HashSet<string> NotRelayed = new(StringComparer.OrdinalIgnoreCase)
     {
         "Connection", "Keep-Alive", "Proxy-Connection", "Transfer-Encoding", "Upgrade", "Trailer", "Content-Length",
-        "Content-Encoding", "Content-Type", "Server", "Date",
+        "Content-Encoding", "Server", "Date",
     };
 
     public async Task<UpstreamAnswer> CallAsync(IHeaderDictionary clientHeaders, byte[] body, string lane, CancellationToken stopping)

@@ -55,6 +55,10 @@ public static class ProxyMetrics
         "rewriteproxy_coalesced_total", "Lane calls answered from another caller's in-flight upstream call.",
         new CounterConfiguration { LabelNames = ["lane"] });
 
+    public static readonly Gauge LaneMaxDrift = Prometheus.Metrics.CreateGauge(
+        "rewriteproxy_lane_max_drift", "The configured MaxDrift of each lane, for alerts that compare drift to it.",
+        new GaugeConfiguration { LabelNames = ["lane"] });
+
     public static readonly Counter FailOpen = Prometheus.Metrics.CreateCounter(
         "rewriteproxy_fail_open_total", "Lane calls forwarded uncached because the cache side failed (store, index, embedder).",
         new CounterConfiguration { LabelNames = ["reason"] });

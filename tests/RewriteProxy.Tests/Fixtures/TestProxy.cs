@@ -24,12 +24,19 @@ public sealed class TestProxy : IAsyncDisposable
         Client = new HttpClient { BaseAddress = Root, Timeout = TimeSpan.FromSeconds(60) };
     }
 
+    /// <summary>A fresh folder for one proxy's store; removed by the caller or left in /tmp.</summary>
+    public static string NewStorePath() =>
+        Path.Combine(Path.GetTempPath(), "rewriteproxy-tests", Guid.NewGuid().ToString("N"), "cache.db");
+
     public static IConfigurationRoot Configuration(Uri upstream, IDictionary<string, string?>? settings = null)
     {
         var values = new Dictionary<string, string?>
         {
             ["Upstream:BaseUrl"] = upstream.ToString(),
+            ["Store:Path"] = NewStorePath(),
             ["Logging:LogLevel:Default"] = "Warning",
+            ["Lanes:draft:Kind"] = "draft",
+            ["Lanes:siblings:Kind"] = "siblings",
         };
         if (settings is not null)
             foreach (var (k, v) in settings) values[k] = v;
@@ -42,7 +49,11 @@ public sealed class TestProxy : IAsyncDisposable
         var configuration = Configuration(upstream, settings);
         var (options, errors) = OptionsReader.Read(configuration);
         if (options is null) throw new InvalidOperationException(string.Join("\n", errors));
-        var app = ProxyApp.Build(options, configuration, "http://127.0.0.1:0", overrides);
+        var app = ProxyApp.Build(options, configuration, "http://127.0.0.1:0", services =>
+        {
+            SharedEmbedder.Use(services);
+            overrides?.Invoke(services);
+        });
         await app.StartAsync();
         return new TestProxy(app, options);
     }

@@ -1,0 +1,29 @@
+using Prometheus;
+using RewriteProxy.Cache;
+
+namespace RewriteProxy.Telemetry;
+
+/// <summary>Fills <c>rewriteproxy_entries</c> just before a scrape, from the store, at most once every few seconds.</summary>
+public sealed class EntryGauge(IRewriteStore store, RewriteProxy.Hosting.RewriteProxyOptions options)
+{
+    static readonly TimeSpan MinInterval = TimeSpan.FromSeconds(5);
+    DateTimeOffset _last = DateTimeOffset.MinValue;
+
+    public void Register() => Prometheus.Metrics.DefaultRegistry.AddBeforeCollectCallback(Refresh);
+
+    public void Refresh()
+    {
+        if (DateTimeOffset.UtcNow - _last < MinInterval) return;
+        _last = DateTimeOffset.UtcNow;
+        try
+        {
+            var stats = store.Stats();
+            foreach (var lane in options.Lanes.Keys)
+                ProxyMetrics.Entries.WithLabels(lane).Set(stats.Lanes.FirstOrDefault(l => l.Lane.Equals(lane, StringComparison.OrdinalIgnoreCase))?.Entries ?? 0);
+        }
+        catch (StoreException)
+        {
+            // The store is failing; the fail-open counter says so. Keep the last value.
+        }
+    }
+}

@@ -11,8 +11,8 @@ namespace RewriteProxy.Hosting;
 public static class OptionsReader
 {
     /// <summary>Default MaxDrift of each lane kind; see README "Choosing thresholds" for the measurements.</summary>
-    public const double DefaultSiblingMaxDrift = 0.55;
-    public const double DefaultDraftMaxDrift = 0.65;
+    public const double DefaultSiblingMaxDrift = Guard.DriftDefaults.SiblingMaxDrift;
+    public const double DefaultDraftMaxDrift = Guard.DriftDefaults.DraftMaxDrift;
     public const double DefaultHitSimilarity = 0.85;
 
     public static (RewriteProxyOptions? Options, IReadOnlyList<string> Errors) Read(IConfiguration config)
@@ -117,7 +117,7 @@ public static class OptionsReader
             Kind = kind,
             HitSimilarity = r.Unit($"{p}:HitSimilarity", DefaultHitSimilarity),
             MaxDrift = r.Double($"{p}:MaxDrift", kind == LaneKind.Draft ? DefaultDraftMaxDrift : DefaultSiblingMaxDrift, 0, 2),
-            MinSpread = r.Unit($"{p}:MinSpread", 0.05),
+            MinSpread = r.Unit($"{p}:MinSpread", Guard.DriftDefaults.MinSpread),
             MaxSiblings = (int)r.Long($"{p}:MaxSiblings", 5, min: 1, max: 100),
             OnDrift = r.Choice($"{p}:OnDrift", OnDrift.Retry),
             Retries = (int)r.Long($"{p}:Retries", 1, min: 0, max: 5),

@@ -80,7 +80,7 @@ public sealed record LaneOptions
     /// <summary>Largest drift (1 − cosine to the question) a rewrite may have. Default set per kind in <see cref="OptionsReader"/>.</summary>
     public double MaxDrift { get; init; }
     /// <summary>Siblings closer than this (cosine distance) to the question or to each other are echoes or duplicates.</summary>
-    public double MinSpread { get; init; } = 0.05;
+    public double MinSpread { get; init; } = Guard.DriftDefaults.MinSpread;
     /// <summary>Most siblings kept (siblings lanes).</summary>
     public int MaxSiblings { get; init; } = 5;
     /// <summary>What a drifted draft becomes (draft lanes). Default <c>retry</c>.</summary>

@@ -102,7 +102,7 @@ public sealed class PrometheusRulesTests
     }
 
     [Fact]
-    public void Every_alert_waits_has_a_severity_and_links_its_runbook_section()
+    public void Every_alert_has_a_wait_a_severity_annotations_and_a_runbook_section()
     {
         var rules = File.ReadAllText(RuleFiles[1]);
         var runbook = File.ReadAllText(Path.Combine(PromTools.RepositoryRoot, "notes", "alerts.md"));

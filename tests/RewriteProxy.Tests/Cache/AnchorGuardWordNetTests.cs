@@ -87,7 +87,7 @@ public sealed class AnchorGuardWordNetTests
     }
 
     [Fact]
-    public void Shipped_table_is_what_the_generator_makes_from_WordNet()
+    public async Task Shipped_table_is_what_the_generator_makes_from_WordNet()
     {
         RequireWordNet();
         var root = RepositoryRoot();
@@ -100,9 +100,9 @@ public sealed class AnchorGuardWordNetTests
         {
             using var process = Process.Start(start)!;
             var stdout = process.StandardOutput.ReadToEndAsync();
-            var stderr = process.StandardError.ReadToEnd();
-            process.WaitForExit();
-            generated = stdout.Result;
+            var stderr = await process.StandardError.ReadToEndAsync();
+            await process.WaitForExitAsync();
+            generated = await stdout;
             Assert.True(process.ExitCode == 0, $"{Generator} failed: {stderr}");
         }
         catch (System.ComponentModel.Win32Exception e)
@@ -116,6 +116,6 @@ public sealed class AnchorGuardWordNetTests
 
         using var resource = typeof(AnchorGuard).Assembly.GetManifestResourceStream(AnchorAntonyms.ResourceName);
         Assert.NotNull(resource);
-        Assert.Equal(committed, new StreamReader(resource).ReadToEnd());
+        Assert.Equal(committed, await new StreamReader(resource).ReadToEndAsync());
     }
 }

@@ -10,9 +10,9 @@ namespace RewriteProxy.Tests.Cache;
 /// </summary>
 public static class AnchorGuardCases
 {
-    public sealed record Pair(string Asked, string Cached, string? Reason)
+    public sealed record Pair(string Asked, string Cached, string? Reason, bool OffTopic = false)
     {
-        public bool IsParaphrase => Reason is null;
+        public bool IsParaphrase => Reason is null && !OffTopic;
         public override string ToString() => $"{Asked} | {Cached}";
     }
 
@@ -93,6 +93,24 @@ public static class AnchorGuardCases
         new("Is the ferry to Port Ellis never late?", "Is the ferry to Port Ellis ever late?", AnchorReason.Negation),
         new("Does the ward allow two visitors per patient?", "Does the ward allow no visitors per patient?", AnchorReason.Negation),
         new("Is the turbine shut down above 25 m/s wind speed?", "Is the turbine shut down below 25 m/s wind speed?", AnchorReason.Contrast),
+    ];
+
+    /// <summary>
+    /// Different questions whose anchors agree: only similarity can stop them, so they are measured, not guarded
+    /// (the guard is no topic check). They bound how low HitSimilarity may go.
+    /// </summary>
+    public static readonly IReadOnlyList<Pair> OffTopic =
+    [
+        new("Where can I park my bike overnight?", "Where can I park my car overnight?", null, true),
+        new("How do I renew my library card?", "How do I cancel my library card?", null, true),
+        new("Can visitors bring flowers to the ICU?", "Can visitors bring food to the ICU?", null, true),
+        new("How often should blade bolts be inspected?", "How often should blade bearings be greased?", null, true),
+        new("Who do I call about a burst water main?", "Who do I call about a blocked sewer?", null, true),
+        new("Is the swimming pool heated?", "Is the swimming pool chlorinated?", null, true),
+        new("What is the late fee for library books?", "What is the late fee for library DVDs on loan?", null, true),
+        new("When does the ferry to Port Ellis leave?", "How long does the ferry to Port Ellis take?", null, true),
+        new("Can I rent a bike with a debit card?", "Can I rent a bike with a cash deposit?", null, true),
+        new("Where is the hospital's main car park?", "Where is the hospital's main pharmacy?", null, true),
     ];
 
     public static IEnumerable<object[]> Paraphrases() => All.Where(p => p.IsParaphrase).Select(p => new object[] { p.Asked, p.Cached });

@@ -201,6 +201,11 @@ public sealed class SqliteRewriteStore : IRewriteStore
         if (!_queue.Writer.TryWrite(new WriteOp.Hit(id, at.ToUnixTimeMilliseconds()))) Interlocked.Increment(ref DroppedWrites);
     }
 
+    public void Count(string lane, string name, long by = 1)
+    {
+        if (!_queue.Writer.TryWrite(new WriteOp.Tally(lane, name, by))) Interlocked.Increment(ref DroppedWrites);
+    }
+
     public void AppendEvent(EventRow row)
     {
         if (!_events.Enabled) return;
@@ -230,19 +235,24 @@ public sealed class SqliteRewriteStore : IRewriteStore
 
     public StoreStats Stats() => Read(c =>
     {
-        var lanes = c.Query<LaneStats>("""
-            SELECT lane AS Lane, COUNT(*) AS Entries, COALESCE(SUM(hit_count), 0) AS Hits,
-                   COALESCE(SUM(hit_count * (prompt_tokens + completion_tokens)), 0) AS TokensSaved
-            FROM entries GROUP BY lane ORDER BY lane
-            """).AsList();
-        var drops = c.Query<(string Lane, string Reason, long N)>(
-                "SELECT lane, reason, COUNT(*) FROM events WHERE kind = 'rewrite' AND verdict = 'dropped' GROUP BY lane, reason")
-            .GroupBy(r => r.Lane)
-            .ToDictionary(g => g.Key, g => (IReadOnlyDictionary<string, long>)g.ToDictionary(r => r.Reason ?? "", r => r.N));
+        var entries = c.Query<(string Lane, long N)>("SELECT lane, COUNT(*) FROM entries GROUP BY lane")
+            .ToDictionary(r => r.Lane, r => r.N, StringComparer.Ordinal);
+        var tallies = c.Query<(string Lane, string Name, long Value)>("SELECT lane, name, value FROM tallies")
+            .GroupBy(r => r.Lane, StringComparer.Ordinal)
+            .ToDictionary(g => g.Key, g => g.ToDictionary(r => r.Name, r => r.Value, StringComparer.Ordinal), StringComparer.Ordinal);
+        var lanes = entries.Keys.Union(tallies.Keys).Order(StringComparer.Ordinal).Select(lane =>
+        {
+            var t = tallies.GetValueOrDefault(lane) ?? [];
+            long Get(string name) => t.GetValueOrDefault(name);
+            IReadOnlyDictionary<string, long> Prefixed(string prefix) => t.Where(p => p.Key.StartsWith(prefix, StringComparison.Ordinal))
+                .ToDictionary(p => p.Key[prefix.Length..], p => p.Value);
+            return new LaneStats(lane, entries.GetValueOrDefault(lane), Get(Tally.Lookup("hit_exact")), Get(Tally.Lookup("hit_semantic")),
+                Get(Tally.Lookup("miss")), Get(Tally.Lookup("bypass")), Get(Tally.TokensSaved), Prefixed("dropped:"), Prefixed("refused:"));
+        }).ToList();
         long bytes = 0;
         foreach (var suffix in new[] { "", "-wal", "-shm" })
             if (File.Exists(FilePath + suffix)) bytes += new FileInfo(FilePath + suffix).Length;
-        return new StoreStats(lanes, bytes, drops);
+        return new StoreStats(lanes, bytes);
     });
 
     public long EntryCount => Interlocked.Read(ref _entryCount);
@@ -293,6 +303,12 @@ public sealed class SqliteRewriteStore : IRewriteStore
                     case WriteOp.Hit hit:
                         c.Execute("UPDATE entries SET hit_count = hit_count + 1, last_hit = MAX(last_hit, @at) WHERE id = @id",
                             new { id = hit.Id, at = hit.At }, tx);
+                        break;
+                    case WriteOp.Tally tally:
+                        c.Execute("""
+                            INSERT INTO tallies (lane, name, value) VALUES (@Lane, @Name, @By)
+                            ON CONFLICT (lane, name) DO UPDATE SET value = value + excluded.value
+                            """, new { tally.Lane, tally.Name, tally.By }, tx);
                         break;
                     case WriteOp.Event ev:
                         InsertEvent(c, tx, ev.Row);
@@ -466,6 +482,13 @@ public sealed class SqliteRewriteStore : IRewriteStore
         {
             public long Id { get; } = id;
             public long At { get; } = at;
+        }
+
+        public sealed class Tally(string lane, string name, long by) : WriteOp
+        {
+            public string Lane { get; } = lane;
+            public string Name { get; } = name;
+            public long By { get; } = by;
         }
 
         public sealed class Event(EventRow row) : WriteOp

@@ -239,7 +239,7 @@ public sealed class MetricsExpositionTests(MetricsWorkloadFixture run, ITestOutp
     /// ignore UseUrls ("Overriding address(es) 'http://127.0.0.1:0'"): the main port is never bound and the metrics
     /// port serves everything. See notes/metrics.md.
     /// </summary>
-    [Fact(Skip = "ProxyApp binds only Metrics:Port when it is set (Kestrel overrides UseUrls); notes/metrics.md")]
+    [Fact]
     public async Task Main_port_keeps_serving_lanes_but_not_metrics_when_a_metrics_port_is_set()
     {
         var port = FreeLoopbackPort();

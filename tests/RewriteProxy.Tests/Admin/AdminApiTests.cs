@@ -7,29 +7,21 @@ using RewriteProxy.Tests.Fixtures;
 
 namespace RewriteProxy.Tests.Admin;
 
-public sealed class AdminApiTests : IAsyncLifetime
+public sealed class AdminApiTests : UpstreamAndProxy
 {
     const string Token = "admin-token-for-tests-0123456789";
-    ScriptedUpstream _upstream = null!;
-    TestProxy _proxy = null!;
 
-    public async Task InitializeAsync()
+    protected override IDictionary<string, string?> Settings => new Dictionary<string, string?>
     {
-        _upstream = await ScriptedUpstream.StartAsync();
-        _upstream.Completion = r => ScriptedUpstream.LastUserText(r).Contains("garden")
+        ["Admin:Token"] = Token,
+        ["Lanes:draft:MaxDrift"] = "0.9",
+    };
+
+    protected override void Script(ScriptedUpstream upstream)
+    {
+        upstream.Completion = r => ScriptedUpstream.LastUserText(r).Contains("garden")
             ? "Which bin takes garden waste?\nHow often is garden waste collected in winter?"
             : "A draft answer: " + ScriptedUpstream.LastUserText(r);
-        _proxy = await TestProxy.StartAsync(_upstream.BaseUrl, new Dictionary<string, string?>
-        {
-            ["Admin:Token"] = Token,
-            ["Lanes:draft:MaxDrift"] = "0.9",
-        });
-    }
-
-    public async Task DisposeAsync()
-    {
-        await _proxy.DisposeAsync();
-        await _upstream.DisposeAsync();
     }
 
     HttpRequestMessage Admin(HttpMethod method, string path, string? token = Token)
@@ -45,7 +37,7 @@ public sealed class AdminApiTests : IAsyncLifetime
     [InlineData("admin-token-for-tests-012345678")]
     public async Task No_or_wrong_token_is_401(string? token)
     {
-        using var response = await _proxy.Client.SendAsync(Admin(HttpMethod.Get, "/admin/stats", token));
+        using var response = await Proxy.Client.SendAsync(Admin(HttpMethod.Get, "/admin/stats", token));
         Assert.Equal(HttpStatusCode.Unauthorized, response.StatusCode);
         Assert.Equal("Bearer", response.Headers.WwwAuthenticate.Single().Scheme);
     }
@@ -53,7 +45,7 @@ public sealed class AdminApiTests : IAsyncLifetime
     [Fact]
     public async Task Without_a_configured_token_the_admin_api_is_off()
     {
-        await using var proxy = await TestProxy.StartAsync(_upstream.BaseUrl);
+        await using var proxy = await TestProxy.StartAsync(Upstream.BaseUrl);
         using var response = await proxy.Client.SendAsync(Admin(HttpMethod.Get, "/admin/stats"));
         Assert.Equal(HttpStatusCode.NotFound, response.StatusCode);
     }
@@ -61,13 +53,13 @@ public sealed class AdminApiTests : IAsyncLifetime
     [Fact]
     public async Task Stats_list_delete_and_purge_work_on_the_running_cache()
     {
-        await _proxy.AskAsync("draft", "Where is the bottle bank?");
-        await _proxy.AskAsync("draft", "Where is the bottle bank?");
-        await _proxy.AskAsync("draft", "Who collects garden waste?");
-        await _proxy.AskAsync("siblings", "Who collects garden waste?");
-        await _proxy.Services.GetRequiredService<RewriteProxy.Cache.IRewriteStore>().FlushAsync(CancellationToken.None);
+        await Proxy.AskAsync("draft", "Where is the bottle bank?");
+        await Proxy.AskAsync("draft", "Where is the bottle bank?");
+        await Proxy.AskAsync("draft", "Who collects garden waste?");
+        await Proxy.AskAsync("siblings", "Who collects garden waste?");
+        await Proxy.Services.GetRequiredService<RewriteProxy.Cache.IRewriteStore>().FlushAsync(CancellationToken.None);
 
-        using var stats = await _proxy.Client.SendAsync(Admin(HttpMethod.Get, "/admin/stats"));
+        using var stats = await Proxy.Client.SendAsync(Admin(HttpMethod.Get, "/admin/stats"));
         var lanes = (await stats.Content.ReadFromJsonAsync<JsonObject>())!["lanes"]!.AsArray();
         var draft = lanes.Single(l => l!["lane"]!.GetValue<string>() == "draft")!;
         Assert.Equal(2, draft["entries"]!.GetValue<long>());
@@ -75,20 +67,20 @@ public sealed class AdminApiTests : IAsyncLifetime
         Assert.Equal(2, draft["miss"]!.GetValue<long>());
         Assert.Equal(1.0 / 3, draft["hitRatio"]!.GetValue<double>(), 9);
 
-        using var listed = await _proxy.Client.SendAsync(Admin(HttpMethod.Get, "/admin/entries?lane=draft&q=bottle"));
+        using var listed = await Proxy.Client.SendAsync(Admin(HttpMethod.Get, "/admin/entries?lane=draft&q=bottle"));
         var entries = (await listed.Content.ReadFromJsonAsync<JsonObject>())!["entries"]!.AsArray();
         var id = entries.Single()!["id"]!.GetValue<long>();
         Assert.Equal("Where is the bottle bank?", entries.Single()!["question"]!.GetValue<string>());
 
-        using var deleted = await _proxy.Client.SendAsync(Admin(HttpMethod.Delete, $"/admin/entries/{id}"));
+        using var deleted = await Proxy.Client.SendAsync(Admin(HttpMethod.Delete, $"/admin/entries/{id}"));
         Assert.Equal(HttpStatusCode.NoContent, deleted.StatusCode);
-        Assert.Equal("miss", (await _proxy.AskAsync("draft", "Where is the bottle bank?")).Cache);
+        Assert.Equal("miss", (await Proxy.AskAsync("draft", "Where is the bottle bank?")).Cache);
 
         var purge = Admin(HttpMethod.Post, "/admin/purge");
         purge.Content = JsonContent.Create(new { lane = "siblings" });
-        using var purged = await _proxy.Client.SendAsync(purge);
+        using var purged = await Proxy.Client.SendAsync(purge);
         Assert.Equal(1, (await purged.Content.ReadFromJsonAsync<JsonObject>())!["deleted"]!.GetValue<int>());
-        Assert.Equal("miss", (await _proxy.AskAsync("siblings", "Who collects garden waste?")).Cache);
+        Assert.Equal("miss", (await Proxy.AskAsync("siblings", "Who collects garden waste?")).Cache);
     }
 
     [Fact]
@@ -96,7 +88,7 @@ public sealed class AdminApiTests : IAsyncLifetime
     {
         var purge = Admin(HttpMethod.Post, "/admin/purge");
         purge.Content = JsonContent.Create(new { });
-        using var response = await _proxy.Client.SendAsync(purge);
+        using var response = await Proxy.Client.SendAsync(purge);
         Assert.Equal(HttpStatusCode.BadRequest, response.StatusCode);
     }
 }

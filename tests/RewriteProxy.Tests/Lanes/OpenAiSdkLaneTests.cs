@@ -10,26 +10,17 @@ namespace RewriteProxy.Tests.Lanes;
 /// Lane hits and misses, JSON and streamed, read by a client written by others: the official OpenAI .NET SDK
 /// (NuGet OpenAI 2.15.0), configured with nothing but the lane's base URL.
 /// </summary>
-public sealed class OpenAiSdkLaneTests : IAsyncLifetime
+public sealed class OpenAiSdkLaneTests : UpstreamAndProxy
 {
-    ScriptedUpstream _upstream = null!;
-    TestProxy _proxy = null!;
+    protected override IDictionary<string, string?> Settings => new Dictionary<string, string?> { ["Lanes:draft:MaxDrift"] = "0.9" };
 
-    public async Task InitializeAsync()
+    protected override void Script(ScriptedUpstream upstream)
     {
-        _upstream = await ScriptedUpstream.StartAsync();
-        _upstream.Completion = r => "A draft answer: members may borrow twelve books at a time. " + ScriptedUpstream.LastUserText(r);
-        _proxy = await TestProxy.StartAsync(_upstream.BaseUrl, new Dictionary<string, string?> { ["Lanes:draft:MaxDrift"] = "0.9" });
-    }
-
-    public async Task DisposeAsync()
-    {
-        await _proxy.DisposeAsync();
-        await _upstream.DisposeAsync();
+        upstream.Completion = r => "A draft answer: members may borrow twelve books at a time. " + ScriptedUpstream.LastUserText(r);
     }
 
     ChatClient Client() => new("scripted-model", new ApiKeyCredential("sk-sdk-lane"),
-        new OpenAIClientOptions { Endpoint = new Uri(_proxy.Root, "lane/draft/v1") });
+        new OpenAIClientOptions { Endpoint = new Uri(Proxy.Root, "lane/draft/v1") });
 
     static async Task<(string Text, ChatTokenUsage? Usage)> StreamAsync(ChatClient client, string question)
     {
@@ -54,7 +45,7 @@ public sealed class OpenAiSdkLaneTests : IAsyncLifetime
         Assert.Equal(miss.Content.Single().Text, hit.Content.Single().Text);
         Assert.Equal(ChatFinishReason.Stop, hit.FinishReason);
         Assert.Equal(miss.Usage.TotalTokenCount, hit.Usage.TotalTokenCount);
-        Assert.Equal(1, _upstream.ChatCalls);
+        Assert.Equal(1, Upstream.ChatCalls);
     }
 
     [Fact]
@@ -66,8 +57,8 @@ public sealed class OpenAiSdkLaneTests : IAsyncLifetime
 
         Assert.StartsWith("A draft answer:", miss.Text);
         Assert.Equal(miss.Text, hit.Text);
-        Assert.Equal(1, _upstream.ChatCalls);
+        Assert.Equal(1, Upstream.ChatCalls);
         // The SDK asks for stream_options.include_usage itself (from memory); the usage chunk must then be there.
-        if (_upstream.Requests.Single().BodyText.Contains("include_usage")) Assert.NotNull(hit.Usage);
+        if (Upstream.Requests.Single().BodyText.Contains("include_usage")) Assert.NotNull(hit.Usage);
     }
 }

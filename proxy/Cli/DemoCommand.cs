@@ -43,10 +43,6 @@ public static class DemoCommand
             Seed, Calls, Keep, Out,
         };
         command.TreatUnmatchedTokensAsErrors = false;
-        command.Validators.Add(r =>
-        {
-            if (r.GetValue(Calls) < 2) r.AddError("--calls must be at least 2 (one per lane).");
-        });
         command.SetAction(RunAsync);
         return command;
     }
@@ -61,6 +57,11 @@ public static class DemoCommand
         catch (ConfigurationFileException e)
         {
             Console.Error.WriteLine($"rewriteproxy: config: {e.Message}");
+            return ExitCodes.BadConfiguration;
+        }
+        if (parse.GetValue(Calls) < DemoWorkload.Lanes.Length)
+        {
+            Console.Error.WriteLine($"rewriteproxy: demo: --calls must be at least {DemoWorkload.Lanes.Length} (one per lane)");
             return ExitCodes.BadConfiguration;
         }
         var settings = new DemoSettings

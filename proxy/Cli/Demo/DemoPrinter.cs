@@ -86,9 +86,9 @@ public static class DemoPrinter
         if (result.KeptStore is { } kept) console.WriteLine($"Store kept: {kept}");
         foreach (var file in result.Written) console.WriteLine($"Wrote {file}");
         console.WriteLine();
-        console.WriteLine("The upstream above was a scripted stand-in. To put the proxy in front of a real provider:");
+        console.WriteLine("The upstream above was a scripted stand-in. For a real provider, run:");
         console.WriteLine("  rewriteproxy serve --Upstream:BaseUrl=https://api.openai.com/v1");
-        console.WriteLine("and set your app's base URL per rewrite kind (its key passes through to the provider):");
+        console.WriteLine("and point your app's base URL at a lane (its provider key passes through):");
         console.WriteLine("  drafts:   http://127.0.0.1:8080/lane/draft/v1");
         console.WriteLine("  siblings: http://127.0.0.1:8080/lane/siblings/v1");
         console.WriteLine("  anything else: http://127.0.0.1:8080/v1 (passed through untouched)");

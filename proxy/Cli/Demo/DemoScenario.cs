@@ -116,7 +116,7 @@ public static class DemoScenario
              "Who repairs self-checkout kiosks outside office hours?"]),
 
         new("What is the maximum number of items a member can borrow at once?",
-            ["What is the maximum number of items one member can borrow at once?",
+            ["What is the maximum number of items that a member can borrow at once?",
              "What's the maximum number of items a member may borrow at once?"],
             new("What is the minimum number of items a member can borrow at once?", "opposite", "maximum", "minimum"),
             "A member can borrow at most 20 items at once across all branches, of which no more than 5 may be DVDs. The maximum " +
@@ -146,7 +146,7 @@ public static class DemoScenario
             "Overdue fines are waived for members under 16: their cards show a junior flag and the system charges no fine on " +
             "late returns. Lost or damaged items are still charged to the parent or guardian.",
             ["Are lost items charged to junior members?",
-             "How do I set the junior flag on a member's card?",
+             "How do I mark a member under 16 as junior so no overdue fines are charged?",
              "Do overdue fines apply to members over 65?",
              "Can a branch manager waive an overdue fine?",
              "What is the overdue fine per day for adults?"]),
@@ -205,9 +205,9 @@ public static class DemoScenario
             null,
             "If a patron is abusive at the front desk, stay calm, do not argue, and ask a colleague to join you. If the patron " +
             "does not stop, ask them to leave, call security or the police if needed, and file an incident report the same day.",
-            ["How do I file an incident report?",
+            ["How do I file an incident report about an abusive patron?",
              "When can staff ban a patron from the library?",
-             "Who do I call for security at my branch?",
+             "Who do I call for security when a patron is abusive?",
              "Is there training on handling difficult patrons?",
              "Can I refuse to serve an abusive patron?"]),
 
@@ -253,8 +253,8 @@ public static class DemoScenario
             null,
             "In winter the reading rooms should be kept at a temperature between 19 and 21 degrees. If the temperature in a " +
             "reading room falls below 18 degrees, report it to facilities and move members to a warmer room.",
-            ["Who do I call when the heating breaks down?",
-             "How do I report a facilities problem?",
+            ["Who do I call when the reading rooms are too cold in winter?",
+             "How do I report a reading room temperature problem to facilities?",
              "Can staff use portable heaters in the reading rooms?",
              "What temperature should the children's area be kept at?",
              "When is the heating switched on for the season?"]),
@@ -265,7 +265,7 @@ public static class DemoScenario
             new("Can staff share a member's borrowing history with the police with a warrant?", "negation", "without", "with"),
             "Staff must not share a member's borrowing history with the police without a warrant. Refer any police request " +
             "to the data protection officer, who checks the warrant and decides what borrowing records may be released.",
-            ["Who is the data protection officer?",
+            ["Who is the data protection officer who handles police requests for borrowing history?",
              "How long is a member's borrowing history kept?",
              "Can a member see their own borrowing history?",
              "What do I do if the police ask for member details at the desk?",
@@ -309,15 +309,15 @@ public static class DemoScenario
 
         new("Is a staff member allowed to work alone in a branch after 6 pm?",
             ["Can a staff member work alone in a branch after 6 pm?",
-             "Is one staff member allowed to work alone in a branch after 6 pm?"],
+             "Is it allowed for a staff member to work alone in a branch after 6 pm?"],
             new("Is a staff member allowed to work alone in a branch after 8 pm?", "amount", "6 pm", "8 pm"),
             "No staff member may work alone in a branch after 6 pm. Evening shifts are staffed by at least two people, and the " +
             "last two staff members to leave lock up the branch together and sign the closing log.",
             ["What is the lone working policy for small branches?",
              "Who locks up the branch in the evening?",
-             "What do I do if my colleague does not arrive for an evening shift?",
-             "Is there a panic alarm at the front desk?",
-             "How do I sign the closing log?"]),
+             "What if my colleague is late and I would work alone in the branch?",
+             "Is there a panic alarm for staff working alone in a branch?",
+             "How do staff sign the closing log when they lock up the branch?"]),
 
         new("How many weeks of paid parental leave does the network offer?",
             ["How many weeks of paid parental leave does the library network offer?",

@@ -70,7 +70,8 @@ public static class DemoRunner
                 var events = (store as SqliteRewriteStore)?.Events(null, since.AddSeconds(-1))
                              ?? throw new DemoException("the demo reads the event log of the SQLite store");
                 var lanes = DemoWorkload.Lanes.Select(l => Summarize(l, observations, upstream, before, after)).ToList();
-                var checks = DemoWorkload.Lanes.SelectMany(l => Reconcile(l, observations, upstream, before, after, stats, events)).ToList();
+                var entries = (store as SqliteRewriteStore)!.List(null, null, null, int.MaxValue);
+                var checks = DemoWorkload.Lanes.SelectMany(l => Reconcile(l, observations, upstream, before, after, stats, entries, events)).ToList();
                 await app.StopAsync(cancel);
                 var result = new DemoResult
                 {
@@ -222,43 +223,44 @@ public static class DemoRunner
         (long)Math.Round(after.Sum(name, match) - before.Sum(name, match));
 
     static IEnumerable<Reconciliation> Reconcile(string lane, List<DemoObservation> all, DemoUpstream upstream,
-        MetricsSnapshot before, MetricsSnapshot after, StoreStats stats, List<EventRow> events)
+        MetricsSnapshot before, MetricsSnapshot after, StoreStats stats, List<StoredEntry> entries, List<EventRow> events)
     {
         var mine = all.Where(o => o.Call.Lane == lane).ToList();
-        var laneStats = stats.Lanes.FirstOrDefault(l => l.Lane.Equals(lane, StringComparison.OrdinalIgnoreCase));
+        var tallies = stats.Lanes.FirstOrDefault(l => l.Lane.Equals(lane, StringComparison.OrdinalIgnoreCase))
+                      ?? new LaneStats(lane, 0, 0, 0, 0, 0, 0, new Dictionary<string, long>(), new Dictionary<string, long>());
         long Lookups(string result) => Delta(before, after, "rewriteproxy_lookups_total", ("lane", lane), ("result", result));
-        var exact = mine.Count(o => o.Cache == "hit-exact");
-        var semantic = mine.Count(o => o.Cache == "hit-semantic");
+        long Seen(string cache) => mine.Count(o => o.Cache == cache);
 
-        yield return new(lane, "calls", mine.Count, ResultsTotal(), null);
-        yield return new(lane, "exact hits", exact, Lookups("hit_exact"), null);
-        yield return new(lane, "semantic hits", semantic, Lookups("hit_semantic"), null);
-        // The store counts hits per entry (hit_count), without telling exact from semantic.
-        yield return new(lane, "hits", exact + semantic, Lookups("hit_exact") + Lookups("hit_semantic"), laneStats?.Hits ?? 0);
-        yield return new(lane, "misses", mine.Count(o => o.Cache == "miss"), Lookups("miss"), null);
-        yield return new(lane, "bypass", mine.Count(o => o.Cache == "bypass"), Lookups("bypass"), null);
+        yield return new(lane, "calls", mine.Count, Lookups("hit_exact") + Lookups("hit_semantic") + Lookups("miss") + Lookups("bypass"),
+            tallies.HitExact + tallies.HitSemantic + tallies.Miss + tallies.Bypass);
+        yield return new(lane, "exact hits", Seen("hit-exact"), Lookups("hit_exact"), tallies.HitExact);
+        yield return new(lane, "semantic hits", Seen("hit-semantic"), Lookups("hit_semantic"), tallies.HitSemantic);
+        yield return new(lane, "misses", Seen("miss"), Lookups("miss"), tallies.Miss);
+        yield return new(lane, "bypass", Seen("bypass"), Lookups("bypass"), tallies.Bypass);
+        // Each entry also counts its own hits (hit_count), without telling exact from semantic.
+        yield return new(lane, "hits, summed over entries", Seen("hit-exact") + Seen("hit-semantic"),
+            Lookups("hit_exact") + Lookups("hit_semantic"), entries.Where(e => e.Lane == lane).Sum(e => e.HitCount));
         yield return new(lane, "tokens saved", mine.Sum(o => o.SavedTokens),
-            Delta(before, after, "rewriteproxy_tokens_saved_total", ("lane", lane)), laneStats?.TokensSaved ?? 0);
+            Delta(before, after, "rewriteproxy_tokens_saved_total", ("lane", lane)), tallies.TokensSaved);
         yield return new(lane, "upstream calls", upstream.CallsByLane.GetValueOrDefault(lane),
             Delta(before, after, "rewriteproxy_upstream_duration_seconds_count", ("lane", lane)), null);
         // Rounds never ask one question twice at once, so no call may have joined another's upstream call.
         yield return new(lane, "coalesced calls", 0, Delta(before, after, "rewriteproxy_coalesced_total", ("lane", lane)), null);
 
-        var dropEvents = events.Where(e => e.Lane == lane && e.Kind == "rewrite" && e.Verdict == "dropped").ToList();
         var metricDrops = Grown(before, after, "rewriteproxy_dropped_total", lane);
-        yield return new(lane, "rewrites dropped", mine.Where(o => o.Cache == "miss").Sum(o => (long)o.Dropped),
-            metricDrops.Values.Sum(), dropEvents.Count);
-        foreach (var reason in metricDrops.Keys.Union(dropEvents.Select(e => e.Reason ?? "")).Order(StringComparer.Ordinal))
-            yield return new(lane, $"dropped: {reason}", null, metricDrops.GetValueOrDefault(reason),
-                dropEvents.Count(e => (e.Reason ?? "") == reason));
+        var observedDrops = mine.Where(o => o.Cache == "miss").Sum(o => (long)o.Dropped);
+        yield return new(lane, "rewrites dropped", observedDrops, metricDrops.Values.Sum(), tallies.DropsByReason.Values.Sum());
+        yield return new(lane, "rewrites dropped, event log", observedDrops, metricDrops.Values.Sum(),
+            events.Count(e => e.Lane == lane && e.Kind == "rewrite" && e.Verdict == "dropped"));
+        foreach (var reason in metricDrops.Keys.Union(tallies.DropsByReason.Keys).Order(StringComparer.Ordinal))
+            yield return new(lane, $"dropped: {reason}", null, metricDrops.GetValueOrDefault(reason), tallies.DropsByReason.GetValueOrDefault(reason));
 
-        var refusals = events.Where(e => e.Lane == lane && e.Kind == "guard").ToList();
         var metricRefusals = Grown(before, after, "rewriteproxy_guard_rejections_total", lane);
-        foreach (var reason in metricRefusals.Keys.Union(refusals.Select(e => e.Reason ?? "")).Order(StringComparer.Ordinal))
+        foreach (var reason in metricRefusals.Keys.Union(tallies.RefusalsByReason.Keys).Order(StringComparer.Ordinal))
             yield return new(lane, $"guard refused: {reason}", null, metricRefusals.GetValueOrDefault(reason),
-                refusals.Count(e => (e.Reason ?? "") == reason));
-
-        long ResultsTotal() => Lookups("hit_exact") + Lookups("hit_semantic") + Lookups("miss") + Lookups("bypass");
+                tallies.RefusalsByReason.GetValueOrDefault(reason));
+        yield return new(lane, "guard refusals, event log", null, metricRefusals.Values.Sum(),
+            events.Count(e => e.Lane == lane && e.Kind == "guard"));
     }
 
     /// <summary>Nearest-rank percentiles (the textbook definition, common practice).</summary>

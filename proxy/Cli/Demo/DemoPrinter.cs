@@ -11,13 +11,15 @@ public static class DemoPrinter
     public static void Introduce(IAnsiConsole console, DemoSettings settings)
     {
         console.MarkupLine("[bold]RewriteProxy demo[/]");
-        console.WriteLine($"Scenario: {DemoScenario.Title}: staff ask an assistant about their handbook;");
-        console.WriteLine("the assistant expands each question through two lanes, draft and siblings.");
-        console.WriteLine($"The upstream is a SCRIPTED STAND-IN inside this process (no network, no provider key): it answers in " +
-                          $"{DemoUpstream.MinDelay.TotalMilliseconds:0}-{DemoUpstream.MaxDelay.TotalMilliseconds:0} ms with canned drafts and " +
-                          "sibling questions, some with noise or off topic.");
-        console.WriteLine($"Workload: {settings.Calls} calls, {settings.Clients} concurrent clients, seed {settings.Seed}; " +
-                          "the proxy runs on the shipped defaults (config/rewriteproxy.json) with a temporary store.");
+        console.WriteLine($"Scenario: {DemoScenario.Title}.");
+        console.WriteLine("Staff ask an assistant about their handbook; it expands each question through");
+        console.WriteLine("two lanes: draft (a hypothetical answer) and siblings (related questions).");
+        console.WriteLine("The upstream is a SCRIPTED STAND-IN in this process: no network, no key.");
+        console.WriteLine($"It answers in {DemoUpstream.MinDelay.TotalMilliseconds:0}-{DemoUpstream.MaxDelay.TotalMilliseconds:0} ms with canned " +
+                          "answers,");
+        console.WriteLine("some with list noise, echoes, duplicates or off-topic text.");
+        console.WriteLine($"Workload: {settings.Calls} calls, {settings.Clients} concurrent clients, seed {settings.Seed}. The proxy runs");
+        console.WriteLine("on the shipped defaults (config/rewriteproxy.json) with a temporary store.");
         console.WriteLine();
     }
 

@@ -21,7 +21,10 @@ public sealed record DemoSettings
 }
 
 /// <summary>One call as the demo's client saw it.</summary>
+/// <param name="Call">What was asked, on which lane, and why.</param>
+/// <param name="Status">The HTTP status of the answer.</param>
 /// <param name="Cache">The <c>X-Rewrite-Cache</c> header: hit-exact, hit-semantic, miss, bypass (empty when absent).</param>
+/// <param name="Similarity">The <c>X-Rewrite-Similarity</c> header of a semantic hit.</param>
 /// <param name="Dropped">The <c>X-Rewrite-Dropped</c> header (0 when absent).</param>
 /// <param name="SavedTokens">The <c>X-Rewrite-Saved-Tokens</c> header of a hit (0 otherwise).</param>
 /// <param name="Fallback">The answer carries <c>X-Rewrite-Fallback</c>: the question stood in for a drifting draft.</param>

@@ -27,10 +27,12 @@ public static class DemoRunner
     const string Model = "gpt-4o-mini";
 
     /// <summary>Runs one demo.</summary>
+    /// <param name="settings">Seed, calls, clients, whether to keep the store, where to write.</param>
     /// <param name="configuration">The shipped configuration (file, environment, command line); the demo overrides the
     /// upstream, the store path, the metrics port and the log level.</param>
     /// <param name="progress">Called after each call with (calls done, calls in all).</param>
     /// <param name="services">Service overrides for the proxy (tests share one loaded model).</param>
+    /// <param name="cancel">Stops the run.</param>
     /// <exception cref="DemoException">the configuration cannot run the demo.</exception>
     public static async Task<DemoResult> RunAsync(DemoSettings settings, IConfiguration configuration,
         Action<int, int>? progress = null, Action<IServiceCollection>? services = null, CancellationToken cancel = default)

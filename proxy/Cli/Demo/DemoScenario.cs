@@ -21,7 +21,7 @@ public sealed record ScenarioQuestion(string Question, string[] Paraphrases, Nea
 /// </summary>
 public static class DemoScenario
 {
-    public const string Title = "Fenwick Valley Libraries staff handbook (a fictional regional library network)";
+    public const string Title = "Fenwick Valley Libraries (fictional), staff handbook";
 
     public const string DraftSystemPrompt =
         "You help staff of Fenwick Valley Libraries search their staff handbook. Write one short paragraph that could be " +

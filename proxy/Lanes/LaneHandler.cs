@@ -120,6 +120,11 @@ public sealed class LaneHandler(
         {
             outcome = new MissOutcome.Error(504, "upstream_error", "upstream_timeout", "The upstream did not answer within Upstream:Timeout.");
         }
+        catch (OperationCanceledException) when (context.RequestAborted.IsCancellationRequested)
+        {
+            // The client left; a coalesced call goes on for the others and is still stored.
+            return;
+        }
         if (joined) ProxyMetrics.Coalesced.WithLabels(lane.Name).Inc();
         var result = directives.NoStore ? "bypass" : "miss";
         tally.Lookup(lane.Name, result);

@@ -151,7 +151,7 @@ public static class ProxyApp
     public static Uri BoundAddress(WebApplication app)
     {
         var addresses = app.Services.GetRequiredService<IServer>().Features.Get<IServerAddressesFeature>()!.Addresses;
-        var metricsPort = app.Services.GetRequiredService<RewriteProxyOptions>().Metrics.Port;
+        var metricsPort = app.Services.GetService<RewriteProxyOptions>()?.Metrics.Port ?? 0;
         return addresses.Select(a => new Uri(a)).First(u => u.Port != metricsPort);
     }
 }

@@ -116,7 +116,7 @@ public sealed class SecurityTests : IAsyncLifetime
         var credential = "sk-canary-" + Guid.NewGuid().ToString("N");
         const string adminToken = "admin-canary-0123456789abcdef0123";
         var storePath = TestProxy.NewStorePath();
-        // Information level: the request log line of every call is written, as in the shipped configuration.
+        // Debug level: more is logged than the shipped Information level, so more places a credential could leak.
         await using var proxy = await ProxyProcess.StartAsync(_upstream.BaseUrl, storePath, new Dictionary<string, string>
         {
             ["Admin:Token"] = adminToken,

@@ -263,7 +263,8 @@ public sealed class LaneHandler(
     async Task<MissOutcome> GuardSiblingsAsync(Miss miss, ChatCompletion completion, UpstreamAnswer answer)
     {
         var lane = miss.Lane;
-        var candidates = SiblingParser.Parse(completion.Content, lane.Candidates);
+        var parsed = SiblingParser.Parse(completion.Content, lane.Candidates);
+        var candidates = parsed.Count > lane.MaxCandidates ? parsed.Take(lane.MaxCandidates).ToList() : parsed;
         var vectors = cache.Embed([miss.Site.Question, .. candidates]);
         var judgement = SiblingGuard.Judge(vectors[0], candidates, vectors[1..], completion.Content, lane);
         Record(miss, judgement.Kept);

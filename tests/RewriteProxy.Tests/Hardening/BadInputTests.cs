@@ -187,7 +187,15 @@ public sealed class BadInputTests : IAsyncLifetime
     public async Task Ten_thousand_sibling_lines_give_a_bounded_correct_answer_in_bounded_time()
     {
         const string question = "How do I book a slot at the community kitchen?";
-        var lines = Enumerable.Range(0, 10_000).Select(i => $"{i % 100 + 1}. How do I book slot {i} at the community kitchen?");
+        // Four distinct on-topic siblings, repeated with numbering: the guard keeps the distinct ones and drops repeats.
+        string[] variants =
+        [
+            "Can I book the community kitchen for a private event?",
+            "How far ahead can the community kitchen be reserved?",
+            "What does it cost to rent the community kitchen?",
+            "Who do I contact to cancel a community kitchen booking?",
+        ];
+        var lines = Enumerable.Range(0, 10_000).Select(i => $"{i % 100 + 1}. {variants[i % variants.Length]}");
         _upstream.Completion = _ => string.Join("\n", lines);
 
         var watch = Stopwatch.StartNew();
@@ -198,7 +206,8 @@ public sealed class BadInputTests : IAsyncLifetime
         Assert.Equal(200, reply.Status);
         var kept = reply.Content.Split('\n');
         Assert.InRange(kept.Length, 1, _proxy.Options.Lanes["siblings"].MaxSiblings);
-        Assert.All(kept, k => Assert.Matches(@"^How do I book slot \d+ at the community kitchen\?$", k));
+        Assert.All(kept, k => Assert.Contains(k, variants));
+        Assert.Equal(kept.Length, kept.Distinct().Count());
         Assert.True(took < AbsurdCompletionBudget, $"took {took}");
         await AssertEntryIsAsync("siblings", question, reply.Content);
     }

@@ -46,10 +46,15 @@ public sealed record StoredEntry
 public sealed record IndexRow(long Id, string ScopeKey, float[] Vector);
 
 /// <summary>One event-log row: a guarded rewrite or an anchor-guard refusal. Never a credential.</summary>
+/// <param name="At">When it happened.</param>
+/// <param name="Lane">The lane's name.</param>
+/// <param name="PartitionHash">The caller's partition (a hash, never the credential).</param>
+/// <param name="Question">The question asked.</param>
 /// <param name="Kind">rewrite (a judged draft or sibling) | guard (a semantic candidate refused by the anchor guard).</param>
 /// <param name="Candidate">The rewrite, or the cached question that was refused.</param>
 /// <param name="Score">Drift of a rewrite, or similarity of a refused candidate.</param>
 /// <param name="Verdict">accepted | dropped (rewrite) or refused (guard).</param>
+/// <param name="Reason">Why it was dropped or refused; null when accepted.</param>
 public sealed record EventRow(DateTimeOffset At, string Lane, string PartitionHash, string Kind, string Question, string Candidate,
     double Score, string Verdict, string? Reason);
 

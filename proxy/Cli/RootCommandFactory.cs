@@ -14,6 +14,7 @@ public static class RootCommandFactory
         root.Options.Add(Startup.ConfigFile);
         root.Subcommands.Add(ServeCommand.Create());
         root.Subcommands.Add(HealthCommand.Create());
+        root.Subcommands.Add(TuneCommand.Create());
         // No command = serve.
         root.Options.Add(ServeCommand.Urls);
         root.TreatUnmatchedTokensAsErrors = false;

@@ -25,6 +25,9 @@ public interface IRewriteStore : IAsyncDisposable
     /// <summary>Counts a hit; written in the background, never awaited by a response.</summary>
     void RecordHit(long id, DateTimeOffset at);
 
+    /// <summary>Adds to a per-lane tally (see <see cref="Tally"/>) in the background.</summary>
+    void Count(string lane, string name, long by = 1);
+
     /// <summary>Appends to the event log in the background.</summary>
     void AppendEvent(EventRow row);
 

@@ -120,6 +120,7 @@ public sealed class SemanticCache
             if (verdict.Agree) return new LookupResult(LookupKind.HitSemantic, entry, similarity, vector);
 
             ProxyMetrics.GuardRejections.WithLabels(lane.Name, verdict.Reason!).Inc();
+            _store.Count(lane.Name, Tally.Refused(verdict.Reason!));
             _store.AppendEvent(new EventRow(DateTimeOffset.UtcNow, lane.Name, partition, "guard", question, entry.Question, similarity,
                 "refused", verdict.Reason));
         }

@@ -47,5 +47,14 @@ public static class SqliteMigrations
         CREATE INDEX events_at ON events (at);
         CREATE INDEX events_lane_at ON events (lane, at);
         """,
+        // 3: per-lane tallies (lookups by result, drops and refusals by reason, tokens saved), kept across restarts
+        """
+        CREATE TABLE tallies (
+            lane  TEXT    NOT NULL,
+            name  TEXT    NOT NULL,
+            value INTEGER NOT NULL,
+            PRIMARY KEY (lane, name)
+        ) WITHOUT ROWID;
+        """,
     ];
 }

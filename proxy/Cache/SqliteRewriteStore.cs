@@ -124,6 +124,12 @@ public sealed class SqliteRewriteStore : IRewriteStore
 
     T Read<T>(Func<SqliteConnection, T> read)
     {
+        // One stat() per read: a deleted file is noticed at once, not at the next sweep.
+        if (!File.Exists(FilePath))
+        {
+            RequestRecovery(Recovery.Gone);
+            throw new StoreException($"store read failed: {FilePath} is gone");
+        }
         try
         {
             using var c = Connect(create: false);
@@ -131,6 +137,7 @@ public sealed class SqliteRewriteStore : IRewriteStore
         }
         catch (SqliteException e)
         {
+            if (IsCorruption(e)) RequestRecovery(Recovery.Corrupt);
             throw new StoreException($"store read failed: {e.Message}", e);
         }
         catch (InvalidOperationException e)
@@ -201,6 +208,11 @@ public sealed class SqliteRewriteStore : IRewriteStore
         if (!_queue.Writer.TryWrite(new WriteOp.Hit(id, at.ToUnixTimeMilliseconds()))) Interlocked.Increment(ref DroppedWrites);
     }
 
+    public void Count(string lane, string name, long by = 1)
+    {
+        if (!_queue.Writer.TryWrite(new WriteOp.Tally(lane, name, by))) Interlocked.Increment(ref DroppedWrites);
+    }
+
     public void AppendEvent(EventRow row)
     {
         if (!_events.Enabled) return;
@@ -230,19 +242,24 @@ public sealed class SqliteRewriteStore : IRewriteStore
 
     public StoreStats Stats() => Read(c =>
     {
-        var lanes = c.Query<LaneStats>("""
-            SELECT lane AS Lane, COUNT(*) AS Entries, COALESCE(SUM(hit_count), 0) AS Hits,
-                   COALESCE(SUM(hit_count * (prompt_tokens + completion_tokens)), 0) AS TokensSaved
-            FROM entries GROUP BY lane ORDER BY lane
-            """).AsList();
-        var drops = c.Query<(string Lane, string Reason, long N)>(
-                "SELECT lane, reason, COUNT(*) FROM events WHERE kind = 'rewrite' AND verdict = 'dropped' GROUP BY lane, reason")
-            .GroupBy(r => r.Lane)
-            .ToDictionary(g => g.Key, g => (IReadOnlyDictionary<string, long>)g.ToDictionary(r => r.Reason ?? "", r => r.N));
+        var entries = c.Query<(string Lane, long N)>("SELECT lane, COUNT(*) FROM entries GROUP BY lane")
+            .ToDictionary(r => r.Lane, r => r.N, StringComparer.Ordinal);
+        var tallies = c.Query<(string Lane, string Name, long Value)>("SELECT lane, name, value FROM tallies")
+            .GroupBy(r => r.Lane, StringComparer.Ordinal)
+            .ToDictionary(g => g.Key, g => g.ToDictionary(r => r.Name, r => r.Value, StringComparer.Ordinal), StringComparer.Ordinal);
+        var lanes = entries.Keys.Union(tallies.Keys).Order(StringComparer.Ordinal).Select(lane =>
+        {
+            var t = tallies.GetValueOrDefault(lane) ?? [];
+            long Get(string name) => t.GetValueOrDefault(name);
+            IReadOnlyDictionary<string, long> Prefixed(string prefix) => t.Where(p => p.Key.StartsWith(prefix, StringComparison.Ordinal))
+                .ToDictionary(p => p.Key[prefix.Length..], p => p.Value);
+            return new LaneStats(lane, entries.GetValueOrDefault(lane), Get(Tally.Lookup("hit_exact")), Get(Tally.Lookup("hit_semantic")),
+                Get(Tally.Lookup("miss")), Get(Tally.Lookup("bypass")), Get(Tally.TokensSaved), Prefixed("dropped:"), Prefixed("refused:"));
+        }).ToList();
         long bytes = 0;
         foreach (var suffix in new[] { "", "-wal", "-shm" })
             if (File.Exists(FilePath + suffix)) bytes += new FileInfo(FilePath + suffix).Length;
-        return new StoreStats(lanes, bytes, drops);
+        return new StoreStats(lanes, bytes);
     });
 
     public long EntryCount => Interlocked.Read(ref _entryCount);
@@ -265,9 +282,11 @@ public sealed class SqliteRewriteStore : IRewriteStore
                 more = true; // nothing arrived: time to sweep
             }
             if (!more && !reader.TryPeek(out _)) break;
+            RecoverIfAsked();
             batch.Clear();
             while (batch.Count < BatchSize && reader.TryRead(out var op)) batch.Add(op);
             if (batch.Count > 0) WriteBatch(batch);
+            RecoverIfAsked();
             if (DateTimeOffset.UtcNow >= _nextSweep)
             {
                 _nextSweep = DateTimeOffset.UtcNow + SweepEvery;
@@ -294,6 +313,12 @@ public sealed class SqliteRewriteStore : IRewriteStore
                         c.Execute("UPDATE entries SET hit_count = hit_count + 1, last_hit = MAX(last_hit, @at) WHERE id = @id",
                             new { id = hit.Id, at = hit.At }, tx);
                         break;
+                    case WriteOp.Tally tally:
+                        c.Execute("""
+                            INSERT INTO tallies (lane, name, value) VALUES (@Lane, @Name, @By)
+                            ON CONFLICT (lane, name) DO UPDATE SET value = value + excluded.value
+                            """, new { tally.Lane, tally.Name, tally.By }, tx);
+                        break;
                     case WriteOp.Event ev:
                         InsertEvent(c, tx, ev.Row);
                         _eventCount++;
@@ -314,6 +339,8 @@ public sealed class SqliteRewriteStore : IRewriteStore
         }
         catch (Exception e) when (e is SqliteException or InvalidOperationException or IOException)
         {
+            if (e is SqliteException se && IsCorruption(se)) RequestRecovery(Recovery.Corrupt);
+            else if (!File.Exists(FilePath)) RequestRecovery(Recovery.Gone);
             var failure = new StoreException($"store write failed: {e.Message}", e);
             foreach (var op in batch) op.Fail(failure);
             _log.LogError("store: a batch of {Count} writes failed: {Reason}", batch.Count, e.Message);
@@ -380,22 +407,67 @@ public sealed class SqliteRewriteStore : IRewriteStore
         return ids;
     }
 
+    enum Recovery { None, Gone, Corrupt }
+
+    /// <summary>Least time between two recovery attempts, so a store that cannot be recreated is not retried on every request.</summary>
+    static readonly TimeSpan RecoveryBackoff = TimeSpan.FromSeconds(5);
+    int _recovery;
+    DateTimeOffset _lastRecovery = DateTimeOffset.MinValue;
+
+    static bool IsCorruption(SqliteException e) => e.SqliteErrorCode is 11 /* SQLITE_CORRUPT */ or 26 /* SQLITE_NOTADB */;
+
+    void RequestRecovery(Recovery what)
+    {
+        if (Interlocked.CompareExchange(ref _recovery, (int)what, (int)Recovery.None) == (int)Recovery.None)
+            _queue.Writer.TryWrite(new WriteOp.Barrier()); // wakes the writer, which recovers
+    }
+
+    /// <summary>
+    /// On the writer: a deleted file is recreated empty (pooled connections would otherwise keep writing to an unlinked
+    /// inode); a corrupt file is moved aside as <c>{path}.corrupt-{time}</c>, kept for inspection, and replaced by an empty one.
+    /// </summary>
+    void RecoverIfAsked()
+    {
+        var what = (Recovery)Volatile.Read(ref _recovery);
+        if (what == Recovery.None) return;
+        if (DateTimeOffset.UtcNow - _lastRecovery < RecoveryBackoff)
+        {
+            Volatile.Write(ref _recovery, (int)Recovery.None);
+            return;
+        }
+        _lastRecovery = DateTimeOffset.UtcNow;
+        SqliteConnection.ClearAllPools();
+        try
+        {
+            if (what == Recovery.Corrupt)
+            {
+                var aside = $"{FilePath}.corrupt-{DateTimeOffset.UtcNow:yyyyMMddTHHmmss}";
+                foreach (var suffix in new[] { "", "-wal", "-shm" })
+                    if (File.Exists(FilePath + suffix)) File.Move(FilePath + suffix, aside + suffix, overwrite: true);
+                _log.LogError("store: {Path} is damaged; moved it to {Aside} and started an empty store", FilePath, aside);
+            }
+            else
+            {
+                _log.LogError("store: {Path} is gone; starting an empty store", FilePath);
+            }
+            Open();
+            Reset?.Invoke();
+        }
+        catch (Exception e) when (e is StoreException or IOException or UnauthorizedAccessException)
+        {
+            _log.LogError("store: cannot start an empty store at {Path}: {Reason}", FilePath, e.Message);
+        }
+        finally
+        {
+            Volatile.Write(ref _recovery, (int)Recovery.None);
+        }
+    }
+
     void Sweep()
     {
         if (!File.Exists(FilePath))
         {
-            // The file was deleted under us: pooled connections would keep writing to an unlinked inode. Start anew.
-            _log.LogError("store: {Path} is gone; starting an empty store", FilePath);
-            SqliteConnection.ClearAllPools();
-            try
-            {
-                Open();
-                Reset?.Invoke();
-            }
-            catch (StoreException e)
-            {
-                _log.LogError("store: cannot recreate {Path}: {Reason}", FilePath, e.Message);
-            }
+            RequestRecovery(Recovery.Gone);
             return;
         }
         try
@@ -466,6 +538,13 @@ public sealed class SqliteRewriteStore : IRewriteStore
         {
             public long Id { get; } = id;
             public long At { get; } = at;
+        }
+
+        public sealed class Tally(string lane, string name, long by) : WriteOp
+        {
+            public string Lane { get; } = lane;
+            public string Name { get; } = name;
+            public long By { get; } = by;
         }
 
         public sealed class Event(EventRow row) : WriteOp

@@ -59,9 +59,34 @@ public sealed record PurgeFilter(string? Lane = null, string? PartitionHash = nu
     public bool IsEmpty => Lane is null && PartitionHash is null && OlderThan is null && Id is null;
 }
 
-public sealed record LaneStats(string Lane, long Entries, long Hits, long TokensSaved);
+/// <summary>What one lane has done since the store was created (tallies survive restarts; purges do not reset them).</summary>
+public sealed record LaneStats(
+    string Lane,
+    long Entries,
+    long HitExact,
+    long HitSemantic,
+    long Miss,
+    long Bypass,
+    long TokensSaved,
+    IReadOnlyDictionary<string, long> DropsByReason,
+    IReadOnlyDictionary<string, long> RefusalsByReason)
+{
+    public long Hits => HitExact + HitSemantic;
 
-public sealed record StoreStats(IReadOnlyList<LaneStats> Lanes, long FileBytes, IReadOnlyDictionary<string, IReadOnlyDictionary<string, long>> DropsByLane);
+    /// <summary>Hits over hits and misses; bypassed calls never gave the cache a chance, so they are left out.</summary>
+    public double? HitRatio => Hits + Miss == 0 ? null : (double)Hits / (Hits + Miss);
+}
+
+public sealed record StoreStats(IReadOnlyList<LaneStats> Lanes, long FileBytes);
+
+/// <summary>Names of the store's per-lane tallies.</summary>
+public static class Tally
+{
+    public static string Lookup(string result) => "lookup:" + result;
+    public static string Dropped(string reason) => "dropped:" + reason;
+    public static string Refused(string reason) => "refused:" + reason;
+    public const string TokensSaved = "tokens_saved";
+}
 
 /// <summary>The store could not do what was asked (locked, read-only, full, corrupt): the caller fails open.</summary>
 public sealed class StoreException(string message, Exception? inner = null) : Exception(message, inner);

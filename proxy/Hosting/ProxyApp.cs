@@ -54,6 +54,7 @@ public static class ProxyApp
         services.AddSingleton<LaneUpstream>();
         services.AddSingleton<LaneHandler>();
         services.AddSingleton<FailOpenLog>();
+        services.AddSingleton<LaneTally>();
         services.AddSingleton<IEmbedder>(sp =>
             CachingEmbedder.Over(OnnxEmbedder.Load(options.Embedding, sp.GetRequiredService<ILoggerFactory>().CreateLogger("embedding")),
                 options.Embedding.CacheSize));
@@ -112,6 +113,8 @@ public static class ProxyApp
                 ? Results.Text("ready\n")
                 : Results.Json(new { ready = false, pending }, statusCode: StatusCodes.Status503ServiceUnavailable);
         });
+
+        Admin.AdminEndpoints.Map(app, options);
 
         var metrics = app.MapMetrics("/metrics");
         if (options.Metrics.Port > 0) metrics.RequireHost($"*:{options.Metrics.Port}");

@@ -23,6 +23,7 @@ public sealed class LaneHandler(
     LaneUpstream upstream,
     Passthrough passthrough,
     FailOpenLog failOpen,
+    LaneTally tally,
     IHostApplicationLifetime lifetime,
     ILogger<LaneHandler> log)
 {
@@ -121,7 +122,7 @@ public sealed class LaneHandler(
         }
         if (joined) ProxyMetrics.Coalesced.WithLabels(lane.Name).Inc();
         var result = directives.NoStore ? "bypass" : "miss";
-        ProxyMetrics.Lookups.WithLabels(lane.Name, result).Inc();
+        tally.Lookup(lane.Name, result);
         context.Response.Headers[Header.Cache] = result;
         await WriteOutcomeAsync(context, request, outcome);
     }
@@ -164,7 +165,7 @@ public sealed class LaneHandler(
     /// <summary>Forwards the call untouched, uncached (a bypass, or a fail-open).</summary>
     async Task BypassAsync(HttpContext context, LaneOptions lane, byte[] body)
     {
-        ProxyMetrics.Lookups.WithLabels(lane.Name, "bypass").Inc();
+        tally.Lookup(lane.Name, "bypass");
         context.Response.Headers[Header.Cache] = "bypass";
         context.Request.Headers.Remove(Header.Lane);
         context.Request.Body = new MemoryStream(body, writable: false);
@@ -178,9 +179,9 @@ public sealed class LaneHandler(
         var scores = ReadScores(entry.Scores);
         var semantic = found.Kind == LookupKind.HitSemantic;
         var label = semantic ? "hit_semantic" : "hit_exact";
-        ProxyMetrics.Lookups.WithLabels(lane.Name, label).Inc();
+        tally.Lookup(lane.Name, label);
         var saved = entry.PromptTokens + entry.CompletionTokens;
-        ProxyMetrics.TokensSaved.WithLabels(lane.Name).Inc(saved);
+        tally.Saved(lane.Name, saved);
         if (semantic) ProxyMetrics.HitSimilarity.WithLabels(lane.Name).Observe(found.Similarity!.Value);
         cache.Store.RecordHit(entry.Id, DateTimeOffset.UtcNow);
 
@@ -305,7 +306,7 @@ public sealed class LaneHandler(
         {
             var verdict = j.Accepted ? "accepted" : "dropped";
             ProxyMetrics.Drift.WithLabels(lane, verdict).Observe(j.Drift);
-            if (!j.Accepted) ProxyMetrics.Dropped.WithLabels(lane, j.Reason ?? "drift").Inc();
+            if (!j.Accepted) tally.Dropped(lane, j.Reason ?? "drift");
             cache.Store.AppendEvent(new EventRow(DateTimeOffset.UtcNow, lane, miss.Partition, "rewrite", miss.Site.Question, j.Text,
                 j.Drift, verdict, j.Reason));
         }

@@ -15,6 +15,8 @@ public static class RootCommandFactory
         root.Subcommands.Add(ServeCommand.Create());
         root.Subcommands.Add(HealthCommand.Create());
         root.Subcommands.Add(TuneCommand.Create());
+        root.Subcommands.Add(StatsCommand.Create());
+        root.Subcommands.Add(PurgeCommand.Create());
         // No command = serve.
         root.Options.Add(ServeCommand.Urls);
         root.TreatUnmatchedTokensAsErrors = false;

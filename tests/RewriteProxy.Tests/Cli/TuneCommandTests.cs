@@ -44,6 +44,16 @@ public class TuneCommandTests
     static TuneRequest Request(string lane, string? labels, string outDir, string? store = null) =>
         new(lane, TimeSpan.FromDays(7), labels, outDir, TuneSweep.DefaultMaxFalseHits, TuneSweep.DefaultKeepGood, store);
 
+    static double DrawnShare(SKBitmap b)
+    {
+        var background = b.Pixels.GroupBy(p => p).MaxBy(g => g.Count())!.Key;
+        return b.Pixels.Count(p => p != background) / (double)b.Pixels.Length;
+    }
+
+    /// <summary>Pixels whose channels differ by more than 40 of 255: clearly coloured, not a shade of grey.</summary>
+    static double ColouredShare(SKBitmap b) =>
+        b.Pixels.Count(p => Math.Max(p.Red, Math.Max(p.Green, p.Blue)) - Math.Min(p.Red, Math.Min(p.Green, p.Blue)) > 40) / (double)b.Pixels.Length;
+
     [Fact]
     public async Task Drift_labels_give_PNG_and_SVG_charts_of_the_configured_size_that_are_not_blank()
     {
@@ -68,12 +78,12 @@ public class TuneCommandTests
 
             using var bitmap = SKBitmap.Decode(png);
             Assert.Equal(TuneCharts.Width, bitmap.Width);
-            var background = bitmap.Pixels.GroupBy(p => p).MaxBy(g => g.Count())!.Key;
-            var drawn = bitmap.Pixels.Count(p => p != background) / (double)bitmap.Pixels.Length;
-            var colours = bitmap.Pixels.Distinct().Count();
-            // Bars, lines, grid and text cover well over 3% of a chart; a blank or text-less canvas would not, nor have 20 colours.
-            Assert.True(drawn > 0.03, $"{chart}: only {drawn:P1} of pixels differ from the background");
-            Assert.True(colours > 20, $"{chart}: only {colours} colours");
+            // Not blank: more pixels differ from the background than on an empty ScottPlot of the same size (axes,
+            // grid and tick labels only), and some are in colour: axes, grid and text are grey, the data is not.
+            using var empty = SKBitmap.Decode(new ScottPlot.Plot().GetImageBytes(TuneCharts.Width, TuneCharts.Height, ScottPlot.ImageFormat.Png));
+            Assert.True(DrawnShare(bitmap) > DrawnShare(empty) + 0.005, $"{chart}: {DrawnShare(bitmap):P1} drawn, an empty plot {DrawnShare(empty):P1}");
+            Assert.True(ColouredShare(bitmap) > 0.005, $"{chart}: only {ColouredShare(bitmap):P2} of pixels in colour");
+            Assert.True(ColouredShare(empty) < 0.001);
 
             // SVG 1.1 (W3C): the document element is <svg> in the http://www.w3.org/2000/svg namespace.
             var svg = XDocument.Load(Path.Combine(outDir, chart + ".svg"));

@@ -22,14 +22,20 @@ public static class TuneCharts
     {
         var plot = new Plot();
         var all = values.Values.SelectMany(v => v).ToList();
-        var max = Math.Max(1.0, all.Count == 0 ? 1.0 : Math.Ceiling(all.Max() / BinWidth) * BinWidth);
-        var min = Math.Min(0.0, all.Count == 0 ? 0.0 : Math.Floor(all.Min() / BinWidth) * BinWidth);
+        // Bins span the data and the marked thresholds, on multiples of the bin width.
+        var span = all.Concat(marks.Select(m => m.X)).DefaultIfEmpty(0).ToList();
+        var min = Math.Floor(span.Min() / BinWidth) * BinWidth;
+        var max = Math.Max(min + BinWidth, Math.Ceiling(span.Max() / BinWidth) * BinWidth);
         var palette = new ScottPlot.Palettes.Category10();
         var index = 0;
         foreach (var (group, numbers) in values)
         {
-            var histogram = ScottPlot.Statistics.Histogram.WithBinSize(BinWidth, min, max);
+            // One spare bin on top: a value on the last edge (e.g. similarity 1.0) must land in a bin, not outside.
+            var bins = (int)Math.Round((max - min) / BinWidth) + 1;
+            var histogram = ScottPlot.Statistics.Histogram.WithBinCount(bins, min, min + bins * BinWidth);
             histogram.AddRange(numbers);
+            if (histogram.Counts.Sum() != numbers.Count)
+                throw new InvalidOperationException($"histogram of {group}: {histogram.Counts.Sum()} of {numbers.Count} values fell in a bin");
             var bars = plot.Add.Histogram(histogram);
             var color = palette.GetColor(index++).WithAlpha(BarAlpha);
             foreach (var bar in bars.Bars)
@@ -46,7 +52,7 @@ public static class TuneCharts
         plot.XLabel(xLabel);
         plot.YLabel("count");
         plot.Axes.Margins(bottom: 0);
-        plot.Axes.SetLimitsX(min - BinWidth, max + BinWidth);
+        plot.Axes.SetLimitsX(min - BinWidth, max + 2 * BinWidth);
         // Drift and similarity pile up on the right half; the legend goes where the bars are fewest.
         plot.ShowLegend(values.Count > 0 && all.Count > 0 && all.Average() > (min + max) / 2 ? Alignment.UpperLeft : Alignment.UpperRight);
         Save(plot, pathWithoutExtension);

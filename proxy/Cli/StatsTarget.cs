@@ -9,7 +9,7 @@ public sealed record StatsTarget(string? StorePath, Uri? Url, string? Token)
     public sealed class Options
     {
         public readonly Option<string?> Store = new("--store") { Description = "SQLite store file (default Store:Path of the configuration)." };
-        public readonly Option<Uri?> Url = new("--url") { Description = "A running proxy, e.g. http://127.0.0.1:8080 (uses /admin)." };
+        public readonly Option<string?> Url = new("--url") { Description = "A running proxy, e.g. http://127.0.0.1:8080 (uses /admin)." };
         public readonly Option<string?> Token = new("--token") { Description = "Admin:Token of the proxy at --url (bearer)." };
 
         public void AddTo(Command command)
@@ -23,12 +23,14 @@ public sealed record StatsTarget(string? StorePath, Uri? Url, string? Token)
         public StatsTarget? Resolve(ParseResult parse, string commandName)
         {
             var store = parse.GetValue(Store);
-            var url = parse.GetValue(Url);
+            var urlText = parse.GetValue(Url);
             var token = parse.GetValue(Token);
-            if (store is not null && url is not null) return Fail(commandName, "give --store or --url, not both");
-            if (url is not null)
+            if (store is not null && urlText is not null) return Fail(commandName, "give --store or --url, not both");
+            if (urlText is not null)
             {
-                if (!url.IsAbsoluteUri || url.Scheme is not ("http" or "https")) return Fail(commandName, $"--url {url}: use an absolute http(s) URL");
+                // Parsed here rather than by the option, so a bad URL is one line on stderr and not a parser exception.
+                if (!Uri.TryCreate(urlText, UriKind.Absolute, out var url) || url.Scheme is not ("http" or "https"))
+                    return Fail(commandName, $"--url {urlText}: use an absolute http(s) URL such as http://127.0.0.1:8080");
                 if (string.IsNullOrEmpty(token)) return Fail(commandName, "--url needs --token (the proxy's Admin:Token)");
                 return new StatsTarget(null, url, token);
             }

@@ -1,8 +1,8 @@
 using System.Text.Json;
-using Microsoft.Extensions.Logging.Abstractions;
+using Dapper;
+using Microsoft.Data.Sqlite;
 using RewriteProxy.Cache;
 using RewriteProxy.Embedding;
-using RewriteProxy.Hosting;
 
 namespace RewriteProxy.Cli;
 
@@ -31,25 +31,45 @@ public static class TuneInput
     /// <summary>Texts per embedder call: large enough to amortise a model run, small enough for a progress bar that moves.</summary>
     public const int EmbedBatch = 32;
 
-    /// <summary>Rewrites and guard refusals of one lane from the event log (read only; the file is never created).</summary>
+    /// <summary>
+    /// Rewrites and guard refusals of one lane from the event log, on a read-only connection that never creates the
+    /// file. Only the scored columns are read (not question and candidate texts, as SqliteRewriteStore.Events does),
+    /// so a full log of a million events fits in a few tens of megabytes.
+    /// </summary>
     public static TuneData ReadEvents(string storePath, string lane, DateTimeOffset since)
     {
         if (!File.Exists(storePath)) throw new TuneInputException($"{storePath}: no store file there (use --store or Store:Path)");
-        var store = new SqliteRewriteStore(new StoreOptions { Path = storePath }, new EventsOptions(), NullLogger.Instance);
-        List<EventRow> rows;
+        var drifts = new List<DriftSample>();
+        var refusals = new Dictionary<string, int>();
+        long? first = null, last = null;
+        var cs = new SqliteConnectionStringBuilder { DataSource = storePath, Mode = SqliteOpenMode.ReadOnly, Pooling = false }.ToString();
         try
         {
-            rows = store.Events(lane, since);
+            using var c = new SqliteConnection(cs);
+            c.Open();
+            using var reader = c.ExecuteReader("""
+                SELECT at, kind, verdict, score, reason FROM events
+                WHERE lane = @lane AND at >= @since AND kind IN ('rewrite', 'guard') ORDER BY at
+                """, new { lane, since = since.ToUnixTimeMilliseconds() });
+            while (reader.Read())
+            {
+                var at = reader.GetInt64(0);
+                first ??= at;
+                last = at;
+                if (reader.GetString(1) == "rewrite") drifts.Add(new DriftSample(string.Intern(reader.GetString(2)), reader.GetDouble(3)));
+                else
+                {
+                    var reason = reader.IsDBNull(4) ? "" : reader.GetString(4);
+                    refusals[reason] = refusals.GetValueOrDefault(reason) + 1;
+                }
+            }
         }
-        catch (StoreException e)
+        catch (SqliteException e)
         {
-            throw new TuneInputException($"{storePath}: {e.Message}");
+            throw new TuneInputException($"{storePath}: cannot read the event log: {e.Message}");
         }
-        var drifts = rows.Where(r => r.Kind == "rewrite").Select(r => new DriftSample(r.Verdict, r.Score)).ToList();
-        var refusals = rows.Where(r => r.Kind == "guard").GroupBy(r => r.Reason ?? "")
-            .ToDictionary(g => g.Key, g => g.Count());
         return new TuneData(TuneSource.Events, $"event log of {storePath}", drifts, [], refusals,
-            rows.Count > 0 ? rows[0].At : null, rows.Count > 0 ? rows[^1].At : null);
+            first is { } a ? DateTimeOffset.FromUnixTimeMilliseconds(a) : null, last is { } b ? DateTimeOffset.FromUnixTimeMilliseconds(b) : null);
     }
 
     /// <summary>

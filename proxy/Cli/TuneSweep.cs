@@ -77,9 +77,27 @@ public static class TuneSweep
 
     public static IReadOnlyList<DropShareRow> DropShares(IReadOnlyList<DriftSample> samples, IReadOnlyList<double> thresholds)
     {
-        var groups = samples.GroupBy(s => s.Group).OrderBy(g => g.Key, StringComparer.Ordinal).ToList();
-        return thresholds.Select(t => new DropShareRow(t, samples.Count, samples.Count(s => s.Drift > t),
-            groups.ToDictionary(g => g.Key, g => (g.Count(s => s.Drift > t), g.Count())))).ToList();
+        // Sorted once, each threshold is a binary search: a million events take milliseconds, not a pass per threshold.
+        var groups = samples.GroupBy(s => s.Group).OrderBy(g => g.Key, StringComparer.Ordinal)
+            .Select(g => (g.Key, Drifts: g.Select(s => s.Drift).Order().ToArray())).ToList();
+        return thresholds.Select(t =>
+        {
+            var byGroup = groups.ToDictionary(g => g.Key, g => (Dropped: g.Drifts.Length - CountAtMost(g.Drifts, t), Total: g.Drifts.Length));
+            return new DropShareRow(t, samples.Count, byGroup.Values.Sum(v => v.Dropped), byGroup);
+        }).ToList();
+    }
+
+    /// <summary>How many of the sorted values are ≤ <paramref name="t"/> (are kept at MaxDrift t).</summary>
+    static int CountAtMost(double[] sorted, double t)
+    {
+        int lo = 0, hi = sorted.Length;
+        while (lo < hi)
+        {
+            var mid = (lo + hi) >>> 1;
+            if (sorted[mid] <= t) lo = mid + 1;
+            else hi = mid;
+        }
+        return lo;
     }
 
     /// <summary>Scores of "drop" against good/bad labels; samples of any other group are not counted.</summary>

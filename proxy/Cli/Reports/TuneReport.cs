@@ -103,7 +103,7 @@ public sealed class TuneReport
     {
         var groups = Data.Drifts.Select(d => d.Group).Distinct().Order(StringComparer.Ordinal).ToList();
         var t = new ReportTable("Share of rewrites each MaxDrift would drop (drift > MaxDrift)",
-            ["MaxDrift", "dropped", "share", .. groups.Select(g => $"{g} dropped")]);
+            ["MaxDrift", "dropped", "share", .. groups.Select(g => $"of {g}")]);
         foreach (var r in DropShares)
             t.Add([T(r.Threshold), $"{r.Dropped}/{r.Total}", F(r.Share, "0.0%"),
                 .. groups.Select(g => r.ByGroup.TryGetValue(g, out var c) ? $"{c.Dropped}/{c.Total}" : "—")]);

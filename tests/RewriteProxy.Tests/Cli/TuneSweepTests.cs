@@ -70,7 +70,7 @@ public class TuneSweepTests
         var report = TuneReport.Build("siblings", Siblings, data, 0.95, 0.01, DateTimeOffset.UnixEpoch);
         var csv = report.DropShareTableOf().ToCsv().Split("\r\n", StringSplitOptions.RemoveEmptyEntries);
 
-        Assert.Equal("MaxDrift,dropped,share,accepted dropped,dropped dropped", csv[0]);
+        Assert.Equal("MaxDrift,dropped,share,of accepted,of dropped", csv[0]);
         Assert.Equal(1 + 14, csv.Length); // 0.30 … 0.95 in steps of 0.05 is 14 thresholds
         // By hand: above 0.30 are 0.33 0.50 0.70 0.96 (4 of 5); above 0.50 only 0.70 0.96 (0.50 is not above itself);
         // above 0.70 only 0.96; above 0.95 only 0.96.

@@ -116,6 +116,7 @@ public static class TuneCommand
         }
         var report = TuneReport.Build(lane.Name, lane, data, request.KeepGood, request.MaxFalseHits, now);
         var dir = request.OutDir ?? $"tune-{lane.Name}-{now.UtcDateTime.ToString("yyyyMMdd-HHmmss", CultureInfo.InvariantCulture)}";
+        if (TuneCharts.FontWarning() is { } warning) console.MarkupLineInterpolated($"[yellow]warning: {warning}[/]");
         IReadOnlyList<string> files = [];
         await console.Status().StartAsync("Drawing charts and writing the report…", _ =>
         {

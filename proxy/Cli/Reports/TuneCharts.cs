@@ -97,6 +97,31 @@ public static class TuneCharts
         return lines;
     }
 
+    /// <summary>Debian/Ubuntu package of the fonts ScottPlot found on the machine this was measured on (DejaVu, via SkiaSharp).</summary>
+    public const string FontPackage = "fonts-dejavu-core";
+
+    /// <summary>Letters and digits every chart draws: the font must have glyphs for all of them.</summary>
+    const string SampleText = "MaxDrift 0.65 count similarity";
+
+    /// <summary>
+    /// A warning when the font ScottPlot chose cannot draw plain Latin text (no fonts installed, or only symbol
+    /// fonts): ScottPlot then draws every chart without any text (no title, ticks or legend labels), silently.
+    /// Null when the text will show.
+    /// </summary>
+    /// <param name="canDraw">Whether the chart font has glyphs for a text; default asks SkiaSharp about ScottPlot's default font.</param>
+    public static string? FontWarning(Func<string, bool>? canDraw = null)
+    {
+        canDraw ??= text =>
+        {
+            using var typeface = SkiaSharp.SKTypeface.FromFamilyName(Fonts.Default);
+            return typeface is not null && typeface.ContainsGlyphs(text);
+        };
+        return canDraw(SampleText)
+            ? null
+            : $"no usable font ('{Fonts.Default}' cannot draw Latin text): the charts will have no text; " +
+              $"install a font package (Debian/Ubuntu: apt-get install {FontPackage})";
+    }
+
     static void Save(Plot plot, string pathWithoutExtension)
     {
         plot.SavePng(pathWithoutExtension + ".png", Width, Height);

@@ -98,6 +98,9 @@ public class TuneCommandTests
         // The console summary names the recommendation, and no line is wider than the 80 columns.
         var output = text.ToString();
         Assert.Contains("recommended MaxDrift", output);
+        // Without fonts ScottPlot draws charts with no text at all; the run warns, and this machine must not need to.
+        Assert.True(TuneCharts.FontWarning() is null, $"install {TuneCharts.FontPackage}: the chart font cannot draw text");
+        Assert.DoesNotContain("no usable font", output);
         Assert.All(output.Split('\n'), line => Assert.True(line.TrimEnd().Length <= 80, line));
     }
 
@@ -210,6 +213,13 @@ public class TuneCommandTests
         Assert.Equal(ExitCodes.Failed, code);
         Assert.Contains($"{labels}, line 3: not valid JSON", error.ToString());
         Assert.False(Directory.Exists(Path.Combine(dir, "out")));
+    }
+
+    [Fact]
+    public void Without_a_font_that_draws_Latin_text_the_run_warns_and_names_the_package()
+    {
+        Assert.Contains($"apt-get install {TuneCharts.FontPackage}", TuneCharts.FontWarning(_ => false));
+        Assert.Null(TuneCharts.FontWarning(_ => true));
     }
 
     [Theory]

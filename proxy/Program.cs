@@ -1,3 +1,6 @@
 using RewriteProxy.Cli;
+using RewriteProxy.Telemetry;
+
+DefaultMetrics.UseLintClean();
 
 return await RootCommandFactory.Create().Parse(args).InvokeAsync();

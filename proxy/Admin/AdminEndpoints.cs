@@ -29,13 +29,13 @@ public static class AdminEndpoints
             {
                 await ErrorResponse.WriteAsync(context, 404, "The admin API is off; set Admin:Token to turn it on.",
                     "invalid_request_error", "admin_off");
-                return null;
+                return Results.Empty; // the response is written; nothing more to serialise
             }
             if (!Authorized(context.Request.Headers.Authorization.ToString(), token))
             {
                 context.Response.Headers.WWWAuthenticate = "Bearer";
                 await ErrorResponse.WriteAsync(context, 401, "A valid admin bearer token is required.", "authentication_error", "unauthorized");
-                return null;
+                return Results.Empty; // the response is written; nothing more to serialise
             }
             return await next(invocation);
         });

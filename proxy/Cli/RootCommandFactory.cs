@@ -14,6 +14,7 @@ public static class RootCommandFactory
         root.Options.Add(Startup.ConfigFile);
         root.Subcommands.Add(ServeCommand.Create());
         root.Subcommands.Add(HealthCommand.Create());
+        root.Subcommands.Add(DemoCommand.Create());
         root.Subcommands.Add(TuneCommand.Create());
         root.Subcommands.Add(StatsCommand.Create());
         root.Subcommands.Add(PurgeCommand.Create());

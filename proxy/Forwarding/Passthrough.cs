@@ -27,9 +27,19 @@ public sealed class Passthrough(IHttpForwarder forwarder, HttpMessageInvoker cli
 
         var feature = context.GetForwarderErrorFeature();
         var (status, code, message) = Describe(error);
+        if (error == ForwarderError.RequestBodyClient && IsTooLarge(feature?.Exception))
+            (status, code, message) = (413, "request_too_large", "The request body is larger than Limits:MaxPassthroughBytes.");
         log.LogWarning("upstream {Error} on {Method} {Path}: {Exception}: {Reason}", error, context.Request.Method,
             context.Request.Path.Value, feature?.Exception?.GetType().Name, feature?.Exception?.Message);
         await ErrorResponse.WriteAsync(context, status, message, "upstream_error", code);
+    }
+
+    /// <summary>Kestrel's body-size refusal, however deep YARP wrapped it.</summary>
+    static bool IsTooLarge(Exception? e)
+    {
+        for (; e is not null; e = e.InnerException)
+            if (e is Microsoft.AspNetCore.Http.BadHttpRequestException { StatusCode: 413 }) return true;
+        return false;
     }
 
     /// <summary>Which status and words the client sees for each forwarding failure.</summary>

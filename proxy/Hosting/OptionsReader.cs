@@ -119,6 +119,7 @@ public static class OptionsReader
             MaxDrift = r.Double($"{p}:MaxDrift", kind == LaneKind.Draft ? DefaultDraftMaxDrift : DefaultSiblingMaxDrift, 0, 2),
             MinSpread = r.Unit($"{p}:MinSpread", Guard.DriftDefaults.MinSpread),
             MaxSiblings = (int)r.Long($"{p}:MaxSiblings", 5, min: 1, max: 100),
+            MaxCandidates = (int)r.Long($"{p}:MaxCandidates", 20, min: 1, max: 1000),
             OnDrift = r.Choice($"{p}:OnDrift", OnDrift.Retry),
             Retries = (int)r.Long($"{p}:Retries", 1, min: 0, max: 5),
             Mode = r.Choice($"{p}:Mode", GuardMode.Enforce),

@@ -28,13 +28,16 @@ public static class ProxyApp
         var builder = WebApplication.CreateSlimBuilder(new WebApplicationOptions { Args = [] });
         builder.Configuration.Sources.Clear();
         builder.Configuration.AddConfiguration(configuration);
-        builder.WebHost.UseUrls(urls.Split(';', StringSplitOptions.RemoveEmptyEntries | StringSplitOptions.TrimEntries));
+        var listen = urls.Split(';', StringSplitOptions.RemoveEmptyEntries | StringSplitOptions.TrimEntries).ToList();
+        // A Listen* call in ConfigureKestrel would replace these URLs, so the metrics port joins them instead.
+        if (options.Metrics.Port > 0) listen.Add($"http://127.0.0.1:{options.Metrics.Port}");
+        builder.WebHost.UseUrls([.. listen]);
         builder.WebHost.ConfigureKestrel(k =>
         {
             k.AddServerHeader = false;
             k.Limits.MaxRequestBodySize = options.Limits.MaxPassthroughBytes;
-            if (options.Metrics.Port > 0) k.ListenLocalhost(options.Metrics.Port);
         });
+        DefaultMetrics.UseLintClean();
 
         builder.Logging.ClearProviders();
         builder.Logging.AddConfiguration(configuration.GetSection("Logging"));
@@ -93,13 +96,10 @@ public static class ProxyApp
         {
             throw new StartupException($"store: {e.Message} (Store:Path)", e);
         }
-        foreach (var lane in options.Lanes.Values)
-        {
-            ProxyMetrics.LaneMaxDrift.WithLabels(lane.Name).Set(lane.MaxDrift);
-            foreach (var result in new[] { "hit_exact", "hit_semantic", "miss", "bypass" })
-                ProxyMetrics.Lookups.WithLabels(lane.Name, result);
-        }
-        app.Services.GetRequiredService<EntryGauge>().Register();
+        ProxyMetrics.Declare(options.Lanes.Values);
+        var gauge = app.Services.GetRequiredService<EntryGauge>();
+        gauge.Register();
+        app.Lifetime.ApplicationStopping.Register(gauge.Stop);
         readiness.Ready("cache");
     }
 
@@ -151,6 +151,7 @@ public static class ProxyApp
     public static Uri BoundAddress(WebApplication app)
     {
         var addresses = app.Services.GetRequiredService<IServer>().Features.Get<IServerAddressesFeature>()!.Addresses;
-        return new Uri(addresses.First());
+        var metricsPort = app.Services.GetService<RewriteProxyOptions>()?.Metrics.Port ?? 0;
+        return addresses.Select(a => new Uri(a)).First(u => u.Port != metricsPort);
     }
 }

@@ -83,6 +83,11 @@ public sealed record LaneOptions
     public double MinSpread { get; init; } = Guard.DriftDefaults.MinSpread;
     /// <summary>Most siblings kept (siblings lanes).</summary>
     public int MaxSiblings { get; init; } = 5;
+    /// <summary>
+    /// Most candidate lines of one completion that are embedded and judged; later lines are ignored. Bounds the cost
+    /// of a runaway completion (thousands of lines). Default 20: four times the five questions a prompt usually asks for.
+    /// </summary>
+    public int MaxCandidates { get; init; } = 20;
     /// <summary>What a drifted draft becomes (draft lanes). Default <c>retry</c>.</summary>
     public OnDrift OnDrift { get; init; } = OnDrift.Retry;
     /// <summary>Upstream calls after the first when <see cref="OnDrift"/> is <c>retry</c>. Default 1.</summary>

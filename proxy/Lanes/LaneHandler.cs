@@ -120,6 +120,11 @@ public sealed class LaneHandler(
         {
             outcome = new MissOutcome.Error(504, "upstream_error", "upstream_timeout", "The upstream did not answer within Upstream:Timeout.");
         }
+        catch (OperationCanceledException) when (context.RequestAborted.IsCancellationRequested)
+        {
+            // The client left; a coalesced call goes on for the others and is still stored.
+            return;
+        }
         if (joined) ProxyMetrics.Coalesced.WithLabels(lane.Name).Inc();
         var result = directives.NoStore ? "bypass" : "miss";
         tally.Lookup(lane.Name, result);
@@ -258,7 +263,8 @@ public sealed class LaneHandler(
     async Task<MissOutcome> GuardSiblingsAsync(Miss miss, ChatCompletion completion, UpstreamAnswer answer)
     {
         var lane = miss.Lane;
-        var candidates = SiblingParser.Parse(completion.Content, lane.Candidates);
+        var parsed = SiblingParser.Parse(completion.Content, lane.Candidates);
+        var candidates = parsed.Count > lane.MaxCandidates ? parsed.Take(lane.MaxCandidates).ToList() : parsed;
         var vectors = cache.Embed([miss.Site.Question, .. candidates]);
         var judgement = SiblingGuard.Judge(vectors[0], candidates, vectors[1..], completion.Content, lane);
         Record(miss, judgement.Kept);

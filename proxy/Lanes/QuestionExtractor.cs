@@ -44,7 +44,7 @@ public static class QuestionExtractor
             if (message["tool_calls"] is not null || message["role"]!.GetValue<string>() is "tool" or "function")
                 return Extraction.Bypass("tools");
             foreach (var part in (message["content"] as JsonArray) ?? [])
-                if (part?["type"]?.ToString() is { } type && type != "text")
+                if (part is JsonObject p && p["type"]?.ToString() is { } type && type != "text")
                     return Extraction.Bypass("media");
             if (last < 0 && message["role"]!.GetValue<string>() == "user") last = i;
         }

@@ -6,14 +6,19 @@ namespace RewriteProxy.Telemetry;
 /// <summary>Fills <c>rewriteproxy_entries</c> just before a scrape, from the store, at most once every few seconds.</summary>
 public sealed class EntryGauge(IRewriteStore store, RewriteProxy.Hosting.RewriteProxyOptions options)
 {
-    static readonly TimeSpan MinInterval = TimeSpan.FromSeconds(5);
+    /// <summary>Scrapes closer together than this reuse the last count: counting a large table on every scrape costs.</summary>
+    static readonly TimeSpan MinInterval = TimeSpan.FromSeconds(1);
     DateTimeOffset _last = DateTimeOffset.MinValue;
+    volatile bool _stopped;
 
     public void Register() => Prometheus.Metrics.DefaultRegistry.AddBeforeCollectCallback(Refresh);
 
+    /// <summary>prometheus-net cannot remove a callback; a stopped app's callback does nothing.</summary>
+    public void Stop() => _stopped = true;
+
     public void Refresh()
     {
-        if (DateTimeOffset.UtcNow - _last < MinInterval) return;
+        if (_stopped || DateTimeOffset.UtcNow - _last < MinInterval) return;
         _last = DateTimeOffset.UtcNow;
         try
         {

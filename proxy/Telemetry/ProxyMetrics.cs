@@ -8,6 +8,33 @@ namespace RewriteProxy.Telemetry;
 /// </summary>
 public static class ProxyMetrics
 {
+    static readonly string[] LookupResults = ["hit_exact", "hit_semantic", "miss", "bypass"];
+    static readonly string[] Verdicts = ["accepted", "dropped"];
+    static readonly string[] DropReasons = ["drift", "echo", "duplicate", "surplus", "policy"];
+    static readonly string[] FailOpenReasons = ["store", "index", "embedder"];
+
+    /// <summary>
+    /// Creates every known series at zero, so the first scrape already has them: a counter that first appears
+    /// with a non-zero value loses that first increase in <c>rate()</c>, and dashboards show gaps.
+    /// </summary>
+    public static void Declare(IEnumerable<RewriteProxy.Hosting.LaneOptions> lanes)
+    {
+        foreach (var lane in lanes)
+        {
+            var name = lane.Name;
+            LaneMaxDrift.WithLabels(name).Set(lane.MaxDrift);
+            foreach (var r in LookupResults) Lookups.WithLabels(name, r);
+            foreach (var v in Verdicts) Drift.WithLabels(name, v);
+            foreach (var r in DropReasons) Dropped.WithLabels(name, r);
+            foreach (var r in Cache.AnchorReason.All) GuardRejections.WithLabels(name, r);
+            HitSimilarity.WithLabels(name);
+            TokensSaved.WithLabels(name);
+            Coalesced.WithLabels(name);
+            Entries.WithLabels(name);
+        }
+        foreach (var r in FailOpenReasons) FailOpen.WithLabels(r);
+    }
+
     /// <summary>Dense between 0.1 and 1.0, where drift thresholds live; 1.0–2.0 catches the opposite-meaning tail.</summary>
     static readonly double[] DriftBuckets =
         [0.05, 0.1, 0.15, 0.2, 0.25, 0.3, 0.35, 0.4, 0.45, 0.5, 0.55, 0.6, 0.65, 0.7, 0.75, 0.8, 0.85, 0.9, 0.95, 1.0, 1.25, 1.5, 2.0];

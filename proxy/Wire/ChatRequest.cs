@@ -17,10 +17,15 @@ public sealed class ChatRequest
     /// <summary>Parses and checks the shape the proxy relies on; a bad body is a <see cref="ChatRequestException"/> (400).</summary>
     public static ChatRequest Parse(ReadOnlySpan<byte> utf8)
     {
+        if (!System.Text.Unicode.Utf8.IsValid(utf8))
+            throw new ChatRequestException("The request body is not valid UTF-8.");
         JsonNode? root;
         try
         {
             root = JsonNode.Parse(utf8, documentOptions: ReadOptions);
+            // JsonNode builds objects lazily: walk the tree now, so duplicate keys and unpaired surrogates are a
+            // 400 here instead of an exception wherever the tree is first read.
+            CheckTree(root);
         }
         catch (JsonException e)
         {
@@ -28,8 +33,11 @@ public sealed class ChatRequest
         }
         catch (ArgumentException e)
         {
-            // Invalid UTF-8 surfaces here.
-            throw new ChatRequestException($"The request body is not valid UTF-8 JSON: {e.Message}");
+            throw new ChatRequestException($"The request body has a repeated property name: {e.Message}");
+        }
+        catch (InvalidOperationException e)
+        {
+            throw new ChatRequestException($"The request body cannot be read: {e.Message}");
         }
         if (root is not JsonObject body) throw new ChatRequestException("The request body must be a JSON object.");
         if (body["model"] is not JsonValue modelValue || modelValue.GetValueKind() != JsonValueKind.String)
@@ -41,6 +49,16 @@ public sealed class ChatRequest
         {
             if (m is not JsonObject message || message["role"] is not JsonValue role || role.GetValueKind() != JsonValueKind.String)
                 throw new ChatRequestException("Each message must be an object with a string 'role'.", "messages");
+            switch (message["content"])
+            {
+                case null:
+                case JsonValue v when v.GetValueKind() is JsonValueKind.String or JsonValueKind.Null:
+                    break;
+                case JsonArray parts when parts.All(p => p is JsonObject):
+                    break;
+                default:
+                    throw new ChatRequestException("A message's 'content' must be a string or an array of content-part objects.", "messages");
+            }
         }
         var stream = Flag(body, "stream");
         var includeUsage = body["stream_options"] is JsonObject so && Flag(so, "include_usage");
@@ -52,6 +70,34 @@ public sealed class ChatRequest
             Stream = stream,
             IncludeUsage = includeUsage,
         };
+    }
+
+    static void CheckTree(JsonNode? node)
+    {
+        switch (node)
+        {
+            case JsonObject o:
+                foreach (var (_, value) in o) CheckTree(value);
+                break;
+            case JsonArray a:
+                foreach (var value in a) CheckTree(value);
+                break;
+            case JsonValue v when v.GetValueKind() == JsonValueKind.String:
+                var text = v.GetValue<string>();
+                if (!IsWellFormed(text)) throw new ChatRequestException("The request body holds a string with an unpaired surrogate escape.");
+                break;
+        }
+    }
+
+    static bool IsWellFormed(string text)
+    {
+        for (var i = 0; i < text.Length; i++)
+        {
+            if (!char.IsSurrogate(text[i])) continue;
+            if (char.IsHighSurrogate(text[i]) && i + 1 < text.Length && char.IsLowSurrogate(text[i + 1])) i++;
+            else return false;
+        }
+        return true;
     }
 
     static bool Flag(JsonObject o, string name) => o[name] switch

@@ -17,7 +17,6 @@ public static class ErrorResponse
             context.Abort();
             return;
         }
-        context.Response.Clear();
         context.Response.StatusCode = status;
         context.Response.ContentType = "application/json";
         var body = Body(message, type, code);

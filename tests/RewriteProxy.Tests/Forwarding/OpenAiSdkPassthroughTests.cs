@@ -9,25 +9,10 @@ namespace RewriteProxy.Tests.Forwarding;
 /// Wire compatibility with a client written by others: the official OpenAI .NET SDK (NuGet OpenAI 2.15.0),
 /// pointed at the proxy by its base URL alone.
 /// </summary>
-public sealed class OpenAiSdkPassthroughTests : IAsyncLifetime
+public sealed class OpenAiSdkPassthroughTests : UpstreamAndProxy
 {
-    ScriptedUpstream _upstream = null!;
-    TestProxy _proxy = null!;
-
-    public async Task InitializeAsync()
-    {
-        _upstream = await ScriptedUpstream.StartAsync();
-        _proxy = await TestProxy.StartAsync(_upstream.BaseUrl);
-    }
-
-    public async Task DisposeAsync()
-    {
-        await _proxy.DisposeAsync();
-        await _upstream.DisposeAsync();
-    }
-
     ChatClient Client() => new("scripted-model", new ApiKeyCredential("sk-sdk-test"),
-        new OpenAIClientOptions { Endpoint = new Uri(_proxy.Root, "v1") });
+        new OpenAIClientOptions { Endpoint = new Uri(Proxy.Root, "v1") });
 
     [Fact]
     public async Task Sdk_chat_completion_passes_through()
@@ -36,7 +21,7 @@ public sealed class OpenAiSdkPassthroughTests : IAsyncLifetime
 
         Assert.Equal("answer to: Where is the depot?", completion.Content.Single().Text);
         Assert.Equal(ChatFinishReason.Stop, completion.FinishReason);
-        var seen = _upstream.Requests.Single();
+        var seen = Upstream.Requests.Single();
         Assert.Equal("/v1/chat/completions", seen.Path);
         Assert.Equal("Bearer sk-sdk-test", seen.Headers["Authorization"]);
     }

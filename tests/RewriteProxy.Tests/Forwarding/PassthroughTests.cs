@@ -7,22 +7,9 @@ using RewriteProxy.Tests.Fixtures;
 namespace RewriteProxy.Tests.Forwarding;
 
 /// <summary>Passthrough over real sockets: what the app sends is what the upstream gets, and back.</summary>
-public sealed class PassthroughTests : IAsyncLifetime
+public sealed class PassthroughTests : UpstreamAndProxy
 {
-    ScriptedUpstream _upstream = null!;
-    TestProxy _proxy = null!;
-
-    public async Task InitializeAsync()
-    {
-        _upstream = await ScriptedUpstream.StartAsync();
-        _proxy = await TestProxy.StartAsync(_upstream.BaseUrl, new Dictionary<string, string?> { ["Upstream:Timeout"] = "2s" });
-    }
-
-    public async Task DisposeAsync()
-    {
-        await _proxy.DisposeAsync();
-        await _upstream.DisposeAsync();
-    }
+    protected override IDictionary<string, string?> Settings => new Dictionary<string, string?> { ["Upstream:Timeout"] = "2s" };
 
     [Fact]
     public async Task Five_megabyte_body_arrives_and_returns_byte_identical()
@@ -31,11 +18,11 @@ public sealed class PassthroughTests : IAsyncLifetime
         new Random(7).NextBytes(body);
         using var content = new ByteArrayContent(body);
         content.Headers.ContentType = new MediaTypeHeaderValue("application/octet-stream");
-        using var response = await _proxy.Client.PostAsync("/v1/files", content);
+        using var response = await Proxy.Client.PostAsync("/v1/files", content);
 
         Assert.Equal(HttpStatusCode.OK, response.StatusCode);
         Assert.Equal(body, await response.Content.ReadAsByteArrayAsync());
-        Assert.Equal(body, _upstream.Requests.Single().Body);
+        Assert.Equal(body, Upstream.Requests.Single().Body);
     }
 
     [Fact]
@@ -45,9 +32,9 @@ public sealed class PassthroughTests : IAsyncLifetime
         var bytes = Encoding.UTF8.GetBytes(json);
         using var content = new ByteArrayContent(bytes);
         content.Headers.ContentType = new MediaTypeHeaderValue("application/json") { CharSet = "utf-8" };
-        using var response = await _proxy.Client.PostAsync("/v1/embeddings", content);
+        using var response = await Proxy.Client.PostAsync("/v1/embeddings", content);
 
-        Assert.Equal(bytes, _upstream.Requests.Single().Body);
+        Assert.Equal(bytes, Upstream.Requests.Single().Body);
         Assert.Equal(bytes, await response.Content.ReadAsByteArrayAsync());
         Assert.Equal("application/json; charset=utf-8", response.Content.Headers.ContentType!.ToString());
     }
@@ -55,9 +42,9 @@ public sealed class PassthroughTests : IAsyncLifetime
     [Fact]
     public async Task Path_under_the_base_url_and_query_string_are_kept()
     {
-        using var response = await _proxy.Client.GetAsync("/v1/models/some%2Fmodel?limit=5&after=a%20b&x=%C3%A9");
+        using var response = await Proxy.Client.GetAsync("/v1/models/some%2Fmodel?limit=5&after=a%20b&x=%C3%A9");
 
-        var seen = _upstream.Requests.Single();
+        var seen = Upstream.Requests.Single();
         Assert.Equal("/v1/models/some%2Fmodel", seen.Path);
         Assert.Equal("?limit=5&after=a%20b&x=%C3%A9", seen.QueryString);
     }
@@ -65,10 +52,10 @@ public sealed class PassthroughTests : IAsyncLifetime
     [Fact]
     public async Task A_base_url_with_its_own_path_prefix_is_honoured()
     {
-        await using var proxy = await TestProxy.StartAsync(new Uri(_upstream.Root, "gateway/openai/v1"));
+        await using var proxy = await TestProxy.StartAsync(new Uri(Upstream.Root, "gateway/openai/v1"));
         using var response = await proxy.Client.GetAsync("/v1/models");
 
-        Assert.Equal("/gateway/openai/v1/models", _upstream.Requests.Single().Path);
+        Assert.Equal("/gateway/openai/v1/models", Upstream.Requests.Single().Path);
     }
 
     [Fact]
@@ -83,21 +70,21 @@ public sealed class PassthroughTests : IAsyncLifetime
         request.Headers.Add("X-Hop", "dropped");
         request.Headers.Add("Keep-Alive", "timeout=5");
         request.Headers.Add("Proxy-Authorization", "Basic Zm9vOmJhcg==");
-        using var response = await _proxy.Client.SendAsync(request);
+        using var response = await Proxy.Client.SendAsync(request);
 
-        var seen = _upstream.Requests.Single().Headers;
+        var seen = Upstream.Requests.Single().Headers;
         Assert.Equal("Bearer sk-test-123", seen["Authorization"]);
         Assert.Equal("org-42", seen["OpenAI-Organization"]);
         Assert.Equal("kept", seen["X-Custom"]);
         Assert.False(seen.ContainsKey("X-Hop"), "a field named by Connection is hop-by-hop (RFC 9110 §7.6.1)");
         Assert.False(seen.ContainsKey("Keep-Alive"));
-        Assert.Equal(_upstream.Root.Authority, seen["Host"]);
+        Assert.Equal(Upstream.Root.Authority, seen["Host"]);
     }
 
     [Fact]
     public async Task Upstream_error_status_headers_and_body_are_relayed()
     {
-        _upstream.Handler = async (context, _) =>
+        Upstream.Handler = async (context, _) =>
         {
             context.Response.StatusCode = 429;
             context.Response.Headers["Retry-After"] = "17";
@@ -105,7 +92,7 @@ public sealed class PassthroughTests : IAsyncLifetime
             context.Response.ContentType = "application/json";
             await context.Response.WriteAsync("{\"error\":{\"message\":\"slow down\",\"type\":\"rate_limit\",\"code\":\"rate_limited\"}}");
         };
-        using var response = await _proxy.Client.PostAsync("/v1/chat/completions", new StringContent("{}", Encoding.UTF8, "application/json"));
+        using var response = await Proxy.Client.PostAsync("/v1/chat/completions", new StringContent("{}", Encoding.UTF8, "application/json"));
 
         Assert.Equal((HttpStatusCode)429, response.StatusCode);
         Assert.Equal("17", response.Headers.RetryAfter!.ToString());
@@ -121,12 +108,12 @@ public sealed class PassthroughTests : IAsyncLifetime
     [InlineData(503)]
     public async Task Each_upstream_status_is_relayed(int status)
     {
-        _upstream.Handler = (context, _) =>
+        Upstream.Handler = (context, _) =>
         {
             context.Response.StatusCode = status;
             return context.Response.WriteAsync("status " + status);
         };
-        using var response = await _proxy.Client.GetAsync("/v1/models");
+        using var response = await Proxy.Client.GetAsync("/v1/models");
         Assert.Equal(status, (int)response.StatusCode);
         Assert.Equal("status " + status, await response.Content.ReadAsStringAsync());
     }
@@ -135,7 +122,7 @@ public sealed class PassthroughTests : IAsyncLifetime
     public async Task Event_stream_is_relayed_chunk_by_chunk_before_the_upstream_finishes()
     {
         var firstSeenByClient = new TaskCompletionSource(TaskCreationOptions.RunContinuationsAsynchronously);
-        _upstream.Handler = async (context, _) =>
+        Upstream.Handler = async (context, _) =>
         {
             context.Response.ContentType = "text/event-stream";
             await context.Response.WriteAsync("data: {\"n\":1}\n\n");
@@ -149,7 +136,7 @@ public sealed class PassthroughTests : IAsyncLifetime
         {
             Content = new StringContent("{\"stream\":true}", Encoding.UTF8, "application/json"),
         };
-        using var response = await _proxy.Client.SendAsync(request, HttpCompletionOption.ResponseHeadersRead);
+        using var response = await Proxy.Client.SendAsync(request, HttpCompletionOption.ResponseHeadersRead);
         Assert.Equal("text/event-stream", response.Content.Headers.ContentType!.MediaType);
         using var reader = new StreamReader(await response.Content.ReadAsStreamAsync());
 
@@ -176,8 +163,8 @@ public sealed class PassthroughTests : IAsyncLifetime
     [Fact]
     public async Task Upstream_slower_than_the_timeout_gives_504_with_an_openai_shaped_error()
     {
-        _upstream.Handler = async (context, _) => await Task.Delay(TimeSpan.FromSeconds(8), context.RequestAborted);
-        using var response = await _proxy.Client.GetAsync("/v1/models");
+        Upstream.Handler = async (context, _) => await Task.Delay(TimeSpan.FromSeconds(8), context.RequestAborted);
+        using var response = await Proxy.Client.GetAsync("/v1/models");
 
         Assert.Equal(HttpStatusCode.GatewayTimeout, response.StatusCode);
         Assert.Equal("upstream_timeout", (await OpenAiError.ReadAsync(response)).Code);
@@ -186,9 +173,9 @@ public sealed class PassthroughTests : IAsyncLifetime
     [Fact]
     public async Task Paths_outside_v1_are_not_forwarded()
     {
-        using var response = await _proxy.Client.GetAsync("/internal/secret");
+        using var response = await Proxy.Client.GetAsync("/internal/secret");
         Assert.Equal(HttpStatusCode.NotFound, response.StatusCode);
-        Assert.Empty(_upstream.Requests);
+        Assert.Empty(Upstream.Requests);
     }
 
     [Fact]
@@ -196,16 +183,16 @@ public sealed class PassthroughTests : IAsyncLifetime
     {
         // RFC 9112 §3.2.2 absolute-form: the proxy must still send to its configured upstream only.
         using var tcp = new System.Net.Sockets.TcpClient();
-        await tcp.ConnectAsync("127.0.0.1", _proxy.Root.Port);
+        await tcp.ConnectAsync("127.0.0.1", Proxy.Root.Port);
         var stream = tcp.GetStream();
         var raw = $"GET http://169.254.169.254/v1/models HTTP/1.1\r\nHost: 169.254.169.254\r\nConnection: close\r\n\r\n";
         await stream.WriteAsync(Encoding.ASCII.GetBytes(raw));
         var reply = await new StreamReader(stream).ReadToEndAsync();
 
         Assert.StartsWith("HTTP/1.1 200", reply);
-        var seen = _upstream.Requests.Single();
+        var seen = Upstream.Requests.Single();
         Assert.Equal("/v1/models", seen.Path);
-        Assert.Equal(_upstream.Root.Authority, seen.Headers["Host"]);
+        Assert.Equal(Upstream.Root.Authority, seen.Headers["Host"]);
     }
 
     static int FreePort()

@@ -13,13 +13,15 @@ public sealed record DriftLabel(
     string[] DraftsOff)
 {
     /// <summary>Every labelled question; the file is read beside this source file, so no copy to the output folder is needed.</summary>
-    public static IReadOnlyList<DriftLabel> Load([CallerFilePath] string here = "")
+    public static IReadOnlyList<DriftLabel> Load()
     {
-        var path = Path.Combine(Path.GetDirectoryName(here)!, "Data", "drift-labels.jsonl");
+        var path = Path.Combine(Path.GetDirectoryName(ThisFile())!, "Data", "drift-labels.jsonl");
         var options = new JsonSerializerOptions(JsonSerializerDefaults.Web);
         return File.ReadLines(path)
             .Where(l => !string.IsNullOrWhiteSpace(l))
             .Select(l => JsonSerializer.Deserialize<DriftLabel>(l, options)!)
             .ToList();
     }
+
+    static string ThisFile([CallerFilePath] string here = "") => here;
 }

@@ -5,63 +5,54 @@ using RewriteProxy.Tests.Fixtures;
 namespace RewriteProxy.Tests.Lanes;
 
 /// <summary>The semantic cache end to end over real sockets, against the scripted upstream.</summary>
-public sealed class LaneCacheTests : IAsyncLifetime
+public sealed class LaneCacheTests : UpstreamAndProxy
 {
-    ScriptedUpstream _upstream = null!;
-    TestProxy _proxy = null!;
-
-    public async Task InitializeAsync()
+    protected override IDictionary<string, string?> Settings => new Dictionary<string, string?>
     {
-        _upstream = await ScriptedUpstream.StartAsync();
+        ["Lanes:draft:MaxDrift"] = "0.9",
+    };
+
+    protected override void Script(ScriptedUpstream upstream)
+    {
         // Drafts answer on topic, so the drift guard keeps them and the cache is what is under test.
-        _upstream.Completion = r => "A draft answer: " + ScriptedUpstream.LastUserText(r);
-        _proxy = await TestProxy.StartAsync(_upstream.BaseUrl, new Dictionary<string, string?>
-        {
-            ["Lanes:draft:MaxDrift"] = "0.9",
-        });
-    }
-
-    public async Task DisposeAsync()
-    {
-        await _proxy.DisposeAsync();
-        await _upstream.DisposeAsync();
+        upstream.Completion = r => "A draft answer: " + ScriptedUpstream.LastUserText(r);
     }
 
     [Fact]
     public async Task Second_identical_question_is_an_exact_hit_without_an_upstream_call()
     {
-        var first = await _proxy.AskAsync("draft", "How many bikes can one member rent at once?");
-        var second = await _proxy.AskAsync("draft", "how many bikes can one member  rent at once");
+        var first = await Proxy.AskAsync("draft", "How many bikes can one member rent at once?");
+        var second = await Proxy.AskAsync("draft", "how many bikes can one member  rent at once");
 
         Assert.Equal("miss", first.Cache);
         Assert.Equal("hit-exact", second.Cache);
         Assert.Equal(first.Content, second.Content);
-        Assert.Equal(1, _upstream.ChatCalls);
+        Assert.Equal(1, Upstream.ChatCalls);
     }
 
     [Fact]
     public async Task Lane_can_be_chosen_by_header_on_the_plain_chat_path()
     {
-        var first = await _proxy.PostLaneAsync("draft", LaneCalls.Request("Where do I return a rented kayak?"), viaHeader: true);
-        var second = await _proxy.PostLaneAsync("draft", LaneCalls.Request("Where do I return a rented kayak?"), viaHeader: true);
+        var first = await Proxy.PostLaneAsync("draft", LaneCalls.Request("Where do I return a rented kayak?"), viaHeader: true);
+        var second = await Proxy.PostLaneAsync("draft", LaneCalls.Request("Where do I return a rented kayak?"), viaHeader: true);
 
         Assert.Equal("miss", first.Cache);
         Assert.Equal("hit-exact", second.Cache);
-        Assert.DoesNotContain("X-Rewrite-Lane", _upstream.Requests.Single().Headers.Keys, StringComparer.OrdinalIgnoreCase);
+        Assert.DoesNotContain("X-Rewrite-Lane", Upstream.Requests.Single().Headers.Keys, StringComparer.OrdinalIgnoreCase);
     }
 
     [Fact]
     public async Task Paraphrase_of_a_cached_question_is_a_semantic_hit()
     {
-        var first = await _proxy.AskAsync("draft", "How do I reset the PIN of my library card?");
-        var second = await _proxy.AskAsync("draft", "How can I reset my library card PIN?");
+        var first = await Proxy.AskAsync("draft", "How do I reset the PIN of my library card?");
+        var second = await Proxy.AskAsync("draft", "How can I reset my library card PIN?");
 
         Assert.Equal("miss", first.Cache);
         Assert.Equal("hit-semantic", second.Cache);
         Assert.Equal(first.Content, second.Content);
         var similarity = double.Parse(second.Header("X-Rewrite-Similarity")!, System.Globalization.CultureInfo.InvariantCulture);
-        Assert.InRange(similarity, _proxy.Options.Lanes["draft"].HitSimilarity, 1.0);
-        Assert.Equal(1, _upstream.ChatCalls);
+        Assert.InRange(similarity, Proxy.Options.Lanes["draft"].HitSimilarity, 1.0);
+        Assert.Equal(1, Upstream.ChatCalls);
     }
 
     [Theory]
@@ -71,78 +62,78 @@ public sealed class LaneCacheTests : IAsyncLifetime
     [InlineData("Which permits are needed for pump model XR-200?", "Which permits are needed for pump model XR-300?")]
     public async Task Near_miss_question_is_not_served_from_the_cache(string cached, string asked)
     {
-        await _proxy.AskAsync("draft", cached);
-        var reply = await _proxy.AskAsync("draft", asked);
+        await Proxy.AskAsync("draft", cached);
+        var reply = await Proxy.AskAsync("draft", asked);
 
         Assert.Equal("miss", reply.Cache);
-        Assert.Equal(2, _upstream.ChatCalls);
+        Assert.Equal(2, Upstream.ChatCalls);
         Assert.Contains(asked, reply.Content);
     }
 
     [Fact]
     public async Task Tenants_never_see_each_others_entries()
     {
-        await _proxy.AskAsync("draft", "What are the visiting hours of ward 3?", credential: "sk-tenant-a");
-        var other = await _proxy.AskAsync("draft", "What are the visiting hours of ward 3?", credential: "sk-tenant-b");
-        var same = await _proxy.AskAsync("draft", "What are the visiting hours of ward 3?", credential: "sk-tenant-a");
+        await Proxy.AskAsync("draft", "What are the visiting hours of ward 3?", credential: "sk-tenant-a");
+        var other = await Proxy.AskAsync("draft", "What are the visiting hours of ward 3?", credential: "sk-tenant-b");
+        var same = await Proxy.AskAsync("draft", "What are the visiting hours of ward 3?", credential: "sk-tenant-a");
 
         Assert.Equal("miss", other.Cache);
         Assert.Equal("hit-exact", same.Cache);
-        Assert.Equal(2, _upstream.ChatCalls);
+        Assert.Equal(2, Upstream.ChatCalls);
     }
 
     [Fact]
     public async Task Different_output_parameters_or_system_prompt_do_not_share_an_entry()
     {
         var q = "When is the recycling centre open?";
-        await _proxy.PostLaneAsync("draft", LaneCalls.Request(q));
+        await Proxy.PostLaneAsync("draft", LaneCalls.Request(q));
         var warmer = LaneCalls.Request(q);
         warmer["temperature"] = 0.7;
         var otherSystem = LaneCalls.Request(q, system: "Answer in French.");
         var otherModel = LaneCalls.Request(q, model: "another-model");
 
-        Assert.Equal("miss", (await _proxy.PostLaneAsync("draft", warmer)).Cache);
-        Assert.Equal("miss", (await _proxy.PostLaneAsync("draft", otherSystem)).Cache);
-        Assert.Equal("miss", (await _proxy.PostLaneAsync("draft", otherModel)).Cache);
-        Assert.Equal("miss", (await _proxy.AskAsync("siblings", q)).Cache);
-        Assert.Equal("hit-exact", (await _proxy.PostLaneAsync("draft", LaneCalls.Request(q))).Cache);
+        Assert.Equal("miss", (await Proxy.PostLaneAsync("draft", warmer)).Cache);
+        Assert.Equal("miss", (await Proxy.PostLaneAsync("draft", otherSystem)).Cache);
+        Assert.Equal("miss", (await Proxy.PostLaneAsync("draft", otherModel)).Cache);
+        Assert.Equal("miss", (await Proxy.AskAsync("siblings", q)).Cache);
+        Assert.Equal("hit-exact", (await Proxy.PostLaneAsync("draft", LaneCalls.Request(q))).Cache);
     }
 
     [Fact]
     public async Task No_cache_skips_the_lookup_and_stores_the_fresh_result()
     {
         var q = "How long is a day pass valid?";
-        await _proxy.AskAsync("draft", q);
-        _upstream.Completion = _ => "A draft answer: a day pass is valid for 24 hours from first use.";
-        var fresh = await _proxy.AskAsync("draft", q, cacheControl: "no-cache");
-        var after = await _proxy.AskAsync("draft", q);
+        await Proxy.AskAsync("draft", q);
+        Upstream.Completion = _ => "A draft answer: a day pass is valid for 24 hours from first use.";
+        var fresh = await Proxy.AskAsync("draft", q, cacheControl: "no-cache");
+        var after = await Proxy.AskAsync("draft", q);
 
         Assert.Equal("miss", fresh.Cache);
         Assert.Equal("hit-exact", after.Cache);
         Assert.Equal("A draft answer: a day pass is valid for 24 hours from first use.", after.Content);
-        Assert.Equal(2, _upstream.ChatCalls);
+        Assert.Equal(2, Upstream.ChatCalls);
     }
 
     [Fact]
     public async Task No_store_neither_looks_up_nor_stores()
     {
         var q = "Can I bring my dog on the ferry?";
-        var first = await _proxy.AskAsync("draft", q, cacheControl: "no-store");
-        var second = await _proxy.AskAsync("draft", q);
+        var first = await Proxy.AskAsync("draft", q, cacheControl: "no-store");
+        var second = await Proxy.AskAsync("draft", q);
 
         Assert.Equal("bypass", first.Cache);
         Assert.Equal("miss", second.Cache);
-        Assert.Equal(2, _upstream.ChatCalls);
+        Assert.Equal(2, Upstream.ChatCalls);
     }
 
     [Fact]
     public async Task Fifty_concurrent_identical_misses_make_exactly_one_upstream_call()
     {
-        _upstream.Delay = TimeSpan.FromMilliseconds(500);
+        Upstream.Delay = TimeSpan.FromMilliseconds(500);
         var replies = await Task.WhenAll(Enumerable.Range(0, 50)
-            .Select(_ => _proxy.AskAsync("draft", "Which documents do I need to enrol a child at Hillside school?")));
+            .Select(_ => Proxy.AskAsync("draft", "Which documents do I need to enrol a child at Hillside school?")));
 
-        Assert.Equal(1, _upstream.ChatCalls);
+        Assert.Equal(1, Upstream.ChatCalls);
         Assert.All(replies, r => Assert.Equal(200, r.Status));
         Assert.Single(replies.Select(r => r.Content).Distinct());
     }
@@ -150,31 +141,31 @@ public sealed class LaneCacheTests : IAsyncLifetime
     [Fact]
     public async Task Unknown_lane_is_404_naming_the_configured_lanes()
     {
-        var reply = await _proxy.AskAsync("summaries", "Anything?");
+        var reply = await Proxy.AskAsync("summaries", "Anything?");
 
         Assert.Equal(404, reply.Status);
         var error = await OpenAiError.ReadAsync(reply.Response);
         Assert.Equal("unknown_lane", error.Code);
         Assert.Contains("draft, siblings", error.Message);
-        Assert.Empty(_upstream.Requests);
+        Assert.Empty(Upstream.Requests);
     }
 
     [Fact]
     public async Task Malformed_json_is_400_and_nothing_goes_upstream()
     {
-        using var response = await _proxy.Client.PostAsync("/lane/draft/v1/chat/completions",
+        using var response = await Proxy.Client.PostAsync("/lane/draft/v1/chat/completions",
             new StringContent("{\"model\": \"m\", \"messages\": [", System.Text.Encoding.UTF8, "application/json"));
 
         Assert.Equal(400, (int)response.StatusCode);
         Assert.Equal("invalid_request", (await OpenAiError.ReadAsync(response)).Code);
-        Assert.Empty(_upstream.Requests);
+        Assert.Empty(Upstream.Requests);
     }
 
     [Fact]
     public async Task A_body_above_the_limit_is_413()
     {
         var big = LaneCalls.Request(new string('x', 2 << 20));
-        var reply = await _proxy.PostLaneAsync("draft", big);
+        var reply = await Proxy.PostLaneAsync("draft", big);
 
         Assert.Equal(413, reply.Status);
         Assert.Equal("request_too_large", (await OpenAiError.ReadAsync(reply.Response)).Code);
@@ -201,27 +192,27 @@ public sealed class LaneCacheTests : IAsyncLifetime
                 body["n"] = 3;
                 break;
         }
-        var first = await _proxy.PostLaneAsync("draft", body);
-        var second = await _proxy.PostLaneAsync("draft", body);
+        var first = await Proxy.PostLaneAsync("draft", body);
+        var second = await Proxy.PostLaneAsync("draft", body);
 
         Assert.Equal("bypass", first.Cache);
         Assert.Equal("bypass", second.Cache);
-        Assert.Equal(2, _upstream.ChatCalls);
-        Assert.Equal(body.ToJsonString(), _upstream.Requests.Last().BodyText);
+        Assert.Equal(2, Upstream.ChatCalls);
+        Assert.Equal(body.ToJsonString(), Upstream.Requests.Last().BodyText);
     }
 
     [Fact]
     public async Task Upstream_errors_are_relayed_and_never_cached()
     {
-        _upstream.Handler = async (context, _) =>
+        Upstream.Handler = async (context, _) =>
         {
             context.Response.StatusCode = 429;
             context.Response.Headers["Retry-After"] = "3";
             await context.Response.WriteAsJsonAsync(new { error = new { message = "rate limited", type = "rate_limit", code = "rate_limited" } });
         };
-        var first = await _proxy.AskAsync("draft", "Does the museum open on public holidays?");
-        _upstream.Handler = null;
-        var second = await _proxy.AskAsync("draft", "Does the museum open on public holidays?");
+        var first = await Proxy.AskAsync("draft", "Does the museum open on public holidays?");
+        Upstream.Handler = null;
+        var second = await Proxy.AskAsync("draft", "Does the museum open on public holidays?");
 
         Assert.Equal(429, first.Status);
         Assert.Equal("3", first.Response.Headers.RetryAfter!.ToString());
@@ -232,10 +223,10 @@ public sealed class LaneCacheTests : IAsyncLifetime
     [Fact]
     public async Task Invalid_upstream_json_is_502_and_never_cached()
     {
-        _upstream.Handler = (context, _) => context.Response.WriteAsync("{\"choices\": [ {\"message\": ");
-        var first = await _proxy.AskAsync("draft", "How deep is the north reservoir?");
-        _upstream.Handler = null;
-        var second = await _proxy.AskAsync("draft", "How deep is the north reservoir?");
+        Upstream.Handler = (context, _) => context.Response.WriteAsync("{\"choices\": [ {\"message\": ");
+        var first = await Proxy.AskAsync("draft", "How deep is the north reservoir?");
+        Upstream.Handler = null;
+        var second = await Proxy.AskAsync("draft", "How deep is the north reservoir?");
 
         Assert.Equal(502, first.Status);
         Assert.Equal("upstream_invalid_response", (await OpenAiError.ReadAsync(first.Response)).Code);
@@ -245,9 +236,9 @@ public sealed class LaneCacheTests : IAsyncLifetime
     [Fact]
     public async Task Streamed_hits_and_misses_carry_the_same_content_as_json()
     {
-        var miss = await _proxy.AskAsync("draft", "What should I pack for the glacier hike?", stream: true);
-        var hit = await _proxy.AskAsync("draft", "What should I pack for the glacier hike?", stream: true);
-        var json = await _proxy.AskAsync("draft", "What should I pack for the glacier hike?");
+        var miss = await Proxy.AskAsync("draft", "What should I pack for the glacier hike?", stream: true);
+        var hit = await Proxy.AskAsync("draft", "What should I pack for the glacier hike?", stream: true);
+        var json = await Proxy.AskAsync("draft", "What should I pack for the glacier hike?");
 
         Assert.Equal("text/event-stream", miss.Response.Content.Headers.ContentType!.MediaType);
         Assert.Equal("miss", miss.Cache);
@@ -256,6 +247,6 @@ public sealed class LaneCacheTests : IAsyncLifetime
         Assert.Equal(json.Content, hit.Content);
         Assert.EndsWith("data: [DONE]\n\n", hit.Body);
         // The upstream is asked without streaming: the proxy guards the whole answer first.
-        Assert.Null(_upstream.Requests.Single().Json!["stream"]);
+        Assert.Null(Upstream.Requests.Single().Json!["stream"]);
     }
 }

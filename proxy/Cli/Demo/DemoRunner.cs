@@ -1,0 +1,292 @@
+using System.Diagnostics;
+using System.Globalization;
+using System.Net.Http.Headers;
+using System.Text;
+using System.Text.Json;
+using System.Text.Json.Nodes;
+using Microsoft.AspNetCore.Builder;
+using Microsoft.Data.Sqlite;
+using Microsoft.Extensions.Configuration;
+using Microsoft.Extensions.DependencyInjection;
+using RewriteProxy.Cache;
+using RewriteProxy.Hosting;
+using RewriteProxy.Lanes;
+
+namespace RewriteProxy.Cli.Demo;
+
+/// <summary>
+/// Runs the demo: starts the scripted upstream and the real proxy (shipped defaults, a temporary store), plays the
+/// workload through both lanes with a few concurrent clients, and checks what the client saw against /metrics and
+/// the store.
+/// </summary>
+public static class DemoRunner
+{
+    /// <summary>What the demo's app sends as its key: one tenant, so one partition.</summary>
+    const string AppKey = "demo-app-key";
+
+    const string Model = "gpt-4o-mini";
+
+    /// <summary>Runs one demo.</summary>
+    /// <param name="settings">Seed, calls, clients, whether to keep the store, where to write.</param>
+    /// <param name="configuration">The shipped configuration (file, environment, command line); the demo overrides the
+    /// upstream, the store path, the metrics port and the log level.</param>
+    /// <param name="progress">Called after each call with (calls done, calls in all).</param>
+    /// <param name="services">Service overrides for the proxy (tests share one loaded model).</param>
+    /// <param name="cancel">Stops the run.</param>
+    /// <exception cref="DemoException">the configuration cannot run the demo.</exception>
+    public static async Task<DemoResult> RunAsync(DemoSettings settings, IConfiguration configuration,
+        Action<int, int>? progress = null, Action<IServiceCollection>? services = null, CancellationToken cancel = default)
+    {
+        ArgumentOutOfRangeException.ThrowIfLessThan(settings.Calls, DemoWorkload.Lanes.Length);
+        ArgumentOutOfRangeException.ThrowIfLessThan(settings.Clients, 1);
+        var watch = Stopwatch.StartNew();
+        var folder = Path.Combine(Path.GetTempPath(), "rewriteproxy-demo-" + Guid.NewGuid().ToString("N")[..12]);
+        Directory.CreateDirectory(folder);
+        var storePath = Path.Combine(folder, "demo.db");
+        try
+        {
+            await using var upstream = await DemoUpstream.StartAsync(settings.Seed, cancel);
+            var (options, demoConfiguration) = ReadOptions(configuration, upstream.BaseUrl, storePath);
+            WebApplication app;
+            try
+            {
+                app = ProxyApp.Build(options, demoConfiguration, "http://127.0.0.1:0", services);
+            }
+            catch (StartupException e)
+            {
+                throw new DemoException(e.Message, e);
+            }
+            await using (app)
+            {
+                await app.StartAsync(cancel);
+                using var http = new HttpClient { BaseAddress = ProxyApp.BoundAddress(app), Timeout = options.Upstream.Timeout * 3 };
+                var before = await ScrapeAsync(http, cancel);
+                var since = DateTimeOffset.UtcNow;
+                var rounds = DemoWorkload.Build(settings.Seed, settings.Calls);
+                var observations = await PlayAsync(http, rounds, settings.Clients, progress, cancel);
+
+                var store = app.Services.GetRequiredService<IRewriteStore>();
+                await store.FlushAsync(cancel);
+                var after = await ScrapeAsync(http, cancel);
+                var stats = store.Stats();
+                var events = (store as SqliteRewriteStore)?.Events(null, since.AddSeconds(-1))
+                             ?? throw new DemoException("the demo reads the event log of the SQLite store");
+                var lanes = DemoWorkload.Lanes.Select(l => Summarize(l, observations, upstream, before, after)).ToList();
+                var entries = (store as SqliteRewriteStore)!.List(null, null, null, int.MaxValue);
+                var checks = DemoWorkload.Lanes.SelectMany(l => Reconcile(l, observations, upstream, before, after, stats, entries, events)).ToList();
+                await app.StopAsync(cancel);
+                var result = new DemoResult
+                {
+                    Settings = settings,
+                    Wall = watch.Elapsed,
+                    Lanes = lanes,
+                    Checks = checks,
+                    Observations = observations,
+                    UpstreamBaseUrl = upstream.BaseUrl,
+                    KeptStore = settings.Keep ? storePath : null,
+                };
+                return result with { Written = WriteSummary(result) };
+            }
+        }
+        finally
+        {
+            if (!settings.Keep)
+            {
+                SqliteConnection.ClearAllPools();
+                try
+                {
+                    Directory.Delete(folder, recursive: true);
+                }
+                catch (IOException)
+                {
+                    // A temp folder left behind is harmless; the OS cleans /tmp.
+                }
+            }
+        }
+    }
+
+    static (RewriteProxyOptions, IConfiguration) ReadOptions(IConfiguration shipped, Uri upstream, string storePath)
+    {
+        var configuration = new ConfigurationBuilder()
+            .AddConfiguration(shipped)
+            .AddInMemoryCollection(new Dictionary<string, string?>
+            {
+                ["Upstream:BaseUrl"] = upstream.ToString(),
+                ["Store:Path"] = storePath,
+                // /metrics on the proxy's own port, which the demo scrapes.
+                ["Metrics:Port"] = "0",
+                // The progress bar and the tables are the output; one log line per request would bury them.
+                ["Logging:LogLevel:Default"] = "Warning",
+            })
+            .Build();
+        var (options, errors) = OptionsReader.Read(configuration);
+        if (options is null) throw new DemoException("configuration: " + string.Join("; ", errors));
+        foreach (var lane in DemoWorkload.Lanes)
+        {
+            var kind = lane == "draft" ? LaneKind.Draft : LaneKind.Siblings;
+            if (!options.Lanes.TryGetValue(lane, out var found) || found.Kind != kind)
+                throw new DemoException($"the demo needs lane '{lane}' of kind {kind.ToString().ToLowerInvariant()} (Lanes:{lane}:Kind), as shipped in config/rewriteproxy.json");
+        }
+        return (options, configuration);
+    }
+
+    static async Task<MetricsSnapshot> ScrapeAsync(HttpClient http, CancellationToken cancel)
+    {
+        var text = await http.GetStringAsync("/metrics", cancel);
+        return MetricsSnapshot.Parse(text);
+    }
+
+    static async Task<List<DemoObservation>> PlayAsync(HttpClient http, IReadOnlyList<IReadOnlyList<DemoCall>> rounds, int clients,
+        Action<int, int>? progress, CancellationToken cancel)
+    {
+        var total = rounds.Sum(r => r.Count);
+        var done = 0;
+        var observations = new List<DemoObservation>(total);
+        progress?.Invoke(0, total);
+        foreach (var round in rounds)
+        {
+            // The round ends before the next begins: what a round asks again was committed in an earlier one.
+            var results = new DemoObservation[round.Count];
+            await Parallel.ForEachAsync(Enumerable.Range(0, round.Count),
+                new ParallelOptions { MaxDegreeOfParallelism = clients, CancellationToken = cancel }, async (i, ct) =>
+                {
+                    results[i] = await CallAsync(http, round[i], ct);
+                    progress?.Invoke(Interlocked.Increment(ref done), total);
+                });
+            observations.AddRange(results);
+        }
+        return observations;
+    }
+
+    static async Task<DemoObservation> CallAsync(HttpClient http, DemoCall call, CancellationToken cancel)
+    {
+        var system = call.Lane == "draft" ? DemoScenario.DraftSystemPrompt : DemoScenario.SiblingsSystemPrompt;
+        var body = new JsonObject
+        {
+            ["model"] = Model,
+            ["messages"] = new JsonArray(
+                new JsonObject { ["role"] = "system", ["content"] = system },
+                new JsonObject { ["role"] = "user", ["content"] = call.Question }),
+            ["temperature"] = 0,
+        };
+        using var request = new HttpRequestMessage(HttpMethod.Post, $"/lane/{call.Lane}/v1/chat/completions")
+        {
+            Content = new StringContent(body.ToJsonString(), Encoding.UTF8, "application/json"),
+        };
+        request.Headers.Authorization = new AuthenticationHeaderValue("Bearer", AppKey);
+        var start = Stopwatch.GetTimestamp();
+        using var response = await http.SendAsync(request, cancel);
+        await response.Content.ReadAsByteArrayAsync(cancel);
+        var ms = Stopwatch.GetElapsedTime(start).TotalMilliseconds;
+        return new DemoObservation(call, (int)response.StatusCode,
+            Header(response, LaneHandler.Header.Cache) ?? "",
+            Header(response, LaneHandler.Header.Similarity) is { } s ? double.Parse(s, CultureInfo.InvariantCulture) : null,
+            Header(response, LaneHandler.Header.Dropped) is { } d ? int.Parse(d, CultureInfo.InvariantCulture) : 0,
+            Header(response, LaneHandler.Header.SavedTokens) is { } t ? long.Parse(t, CultureInfo.InvariantCulture) : 0,
+            Header(response, LaneHandler.Header.Fallback) is not null,
+            ms);
+    }
+
+    static string? Header(HttpResponseMessage response, string name) =>
+        response.Headers.TryGetValues(name, out var values) ? string.Join(",", values) : null;
+
+    static LaneSummary Summarize(string lane, List<DemoObservation> all, DemoUpstream upstream, MetricsSnapshot before, MetricsSnapshot after)
+    {
+        var mine = all.Where(o => o.Call.Lane == lane).ToList();
+        var paraphrases = mine.Where(o => o.Call.Kind == CallKind.Paraphrase).ToList();
+        var nearMisses = mine.Where(o => o.Call.Kind == CallKind.NearMiss).ToList();
+        return new LaneSummary
+        {
+            Lane = lane,
+            Calls = mine.Count,
+            ExactHits = mine.Count(o => o.Cache == "hit-exact"),
+            SemanticHits = mine.Count(o => o.Cache == "hit-semantic"),
+            Misses = mine.Count(o => o.Cache == "miss"),
+            Bypass = mine.Count(o => o.Cache == "bypass"),
+            Errors = mine.Count(o => o.Status != 200),
+            UpstreamCalls = upstream.CallsByLane.GetValueOrDefault(lane),
+            TokensSaved = mine.Sum(o => o.SavedTokens),
+            Fallbacks = mine.Count(o => o.Fallback),
+            DropsByReason = Grown(before, after, "rewriteproxy_dropped_total", lane),
+            GuardRefusalsByReason = Grown(before, after, "rewriteproxy_guard_rejections_total", lane),
+            HitLatency = Percentiles(mine.Where(o => o.IsHit).Select(o => o.Milliseconds)),
+            MissLatency = Percentiles(mine.Where(o => o.Cache == "miss").Select(o => o.Milliseconds)),
+            Paraphrases = paraphrases.Count,
+            ParaphrasesServed = paraphrases.Count(o => o.IsHit),
+            NearMisses = nearMisses.Count,
+            NearMissesNotServed = nearMisses.Count(o => !o.IsHit && o.Status == 200),
+        };
+    }
+
+    static Dictionary<string, long> Grown(MetricsSnapshot before, MetricsSnapshot after, string name, string lane) =>
+        MetricsSnapshot.Growth(before.SumBy(name, "reason", ("lane", lane)), after.SumBy(name, "reason", ("lane", lane)));
+
+    static long Delta(MetricsSnapshot before, MetricsSnapshot after, string name, params (string, string)[] match) =>
+        (long)Math.Round(after.Sum(name, match) - before.Sum(name, match));
+
+    static IEnumerable<Reconciliation> Reconcile(string lane, List<DemoObservation> all, DemoUpstream upstream,
+        MetricsSnapshot before, MetricsSnapshot after, StoreStats stats, List<StoredEntry> entries, List<EventRow> events)
+    {
+        var mine = all.Where(o => o.Call.Lane == lane).ToList();
+        var tallies = stats.Lanes.FirstOrDefault(l => l.Lane.Equals(lane, StringComparison.OrdinalIgnoreCase))
+                      ?? new LaneStats(lane, 0, 0, 0, 0, 0, 0, new Dictionary<string, long>(), new Dictionary<string, long>());
+        long Lookups(string result) => Delta(before, after, "rewriteproxy_lookups_total", ("lane", lane), ("result", result));
+        long Seen(string cache) => mine.Count(o => o.Cache == cache);
+
+        yield return new(lane, "calls", mine.Count, Lookups("hit_exact") + Lookups("hit_semantic") + Lookups("miss") + Lookups("bypass"),
+            tallies.HitExact + tallies.HitSemantic + tallies.Miss + tallies.Bypass);
+        yield return new(lane, "exact hits", Seen("hit-exact"), Lookups("hit_exact"), tallies.HitExact);
+        yield return new(lane, "semantic hits", Seen("hit-semantic"), Lookups("hit_semantic"), tallies.HitSemantic);
+        yield return new(lane, "misses", Seen("miss"), Lookups("miss"), tallies.Miss);
+        yield return new(lane, "bypass", Seen("bypass"), Lookups("bypass"), tallies.Bypass);
+        // Each entry also counts its own hits (hit_count), without telling exact from semantic.
+        yield return new(lane, "hits, summed over entries", Seen("hit-exact") + Seen("hit-semantic"),
+            Lookups("hit_exact") + Lookups("hit_semantic"), entries.Where(e => e.Lane == lane).Sum(e => e.HitCount));
+        yield return new(lane, "tokens saved", mine.Sum(o => o.SavedTokens),
+            Delta(before, after, "rewriteproxy_tokens_saved_total", ("lane", lane)), tallies.TokensSaved);
+        yield return new(lane, "upstream calls", upstream.CallsByLane.GetValueOrDefault(lane),
+            Delta(before, after, "rewriteproxy_upstream_duration_seconds_count", ("lane", lane)), null);
+        // Rounds never ask one question twice at once, so no call may have joined another's upstream call.
+        yield return new(lane, "coalesced calls", 0, Delta(before, after, "rewriteproxy_coalesced_total", ("lane", lane)), null);
+
+        var metricDrops = Grown(before, after, "rewriteproxy_dropped_total", lane);
+        var observedDrops = mine.Where(o => o.Cache == "miss").Sum(o => (long)o.Dropped);
+        yield return new(lane, "rewrites dropped", observedDrops, metricDrops.Values.Sum(), tallies.DropsByReason.Values.Sum());
+        yield return new(lane, "rewrites dropped, event log", observedDrops, metricDrops.Values.Sum(),
+            events.Count(e => e.Lane == lane && e.Kind == "rewrite" && e.Verdict == "dropped"));
+        foreach (var reason in metricDrops.Keys.Union(tallies.DropsByReason.Keys).Order(StringComparer.Ordinal))
+            yield return new(lane, $"dropped: {reason}", null, metricDrops.GetValueOrDefault(reason), tallies.DropsByReason.GetValueOrDefault(reason));
+
+        var metricRefusals = Grown(before, after, "rewriteproxy_guard_rejections_total", lane);
+        foreach (var reason in metricRefusals.Keys.Union(tallies.RefusalsByReason.Keys).Order(StringComparer.Ordinal))
+            yield return new(lane, $"guard refused: {reason}", null, metricRefusals.GetValueOrDefault(reason),
+                tallies.RefusalsByReason.GetValueOrDefault(reason));
+        yield return new(lane, "guard refusals, event log", null, metricRefusals.Values.Sum(),
+            events.Count(e => e.Lane == lane && e.Kind == "guard"));
+    }
+
+    /// <summary>Nearest-rank percentiles (the textbook definition, common practice).</summary>
+    static Latency Percentiles(IEnumerable<double> values)
+    {
+        var sorted = values.Order().ToArray();
+        if (sorted.Length == 0) return new Latency(0, null, null);
+        double Rank(double p) => sorted[Math.Max(0, (int)Math.Ceiling(p * sorted.Length) - 1)];
+        return new Latency(sorted.Length, Rank(0.50), Rank(0.95));
+    }
+
+    /// <summary>Writes the run's result as JSON under the output folder, for scripts and for comparing runs.</summary>
+    static IReadOnlyList<string> WriteSummary(DemoResult result)
+    {
+        if (result.Settings.OutDirectory is not { } dir) return [];
+        Directory.CreateDirectory(dir);
+        var path = Path.Combine(dir, "demo-summary.json");
+        var json = JsonSerializer.Serialize(new
+        {
+            result.Settings.Seed, result.Settings.Calls, result.Settings.Clients,
+            WallSeconds = Math.Round(result.Wall.TotalSeconds, 1),
+            result.CountsAgree, result.NearMissesKeptApart, result.Lanes, result.Checks,
+        }, new JsonSerializerOptions { WriteIndented = true, PropertyNamingPolicy = JsonNamingPolicy.CamelCase });
+        File.WriteAllText(path, json);
+        return [path];
+    }
+}

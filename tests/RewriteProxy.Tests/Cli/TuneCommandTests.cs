@@ -216,6 +216,27 @@ public class TuneCommandTests
     }
 
     [Fact]
+    public async Task An_unknown_lane_is_a_configuration_error_that_lists_the_lanes()
+    {
+        var error = new StringWriter();
+        var before = Console.Error;
+        Console.SetError(error);
+        int code;
+        try
+        {
+            var (console, _) = CliTestKit.Console80();
+            code = await TuneCommand.RunAsync(Request("hyde", null, Path.Combine(CliTestKit.NewFolder(), "out")),
+                CliTestKit.Options("none.db"), () => SharedEmbedder.Instance, console, CancellationToken.None);
+        }
+        finally
+        {
+            Console.SetError(before);
+        }
+        Assert.Equal(ExitCodes.BadConfiguration, code);
+        Assert.Contains("no lane 'hyde' in the configuration (lanes: draft, siblings)", error.ToString());
+    }
+
+    [Fact]
     public void Without_a_font_that_draws_Latin_text_the_run_warns_and_names_the_package()
     {
         Assert.Contains($"apt-get install {TuneCharts.FontPackage}", TuneCharts.FontWarning(_ => false));

@@ -15,6 +15,9 @@ public static class RootCommandFactory
         root.Subcommands.Add(ServeCommand.Create());
         root.Subcommands.Add(HealthCommand.Create());
         root.Subcommands.Add(DemoCommand.Create());
+        root.Subcommands.Add(TuneCommand.Create());
+        root.Subcommands.Add(StatsCommand.Create());
+        root.Subcommands.Add(PurgeCommand.Create());
         // No command = serve.
         root.Options.Add(ServeCommand.Urls);
         root.TreatUnmatchedTokensAsErrors = false;

@@ -10,6 +10,8 @@ COPY config/ config/
 RUN dotnet publish proxy/RewriteProxy.csproj -c Release -o /app --no-restore
 
 FROM mcr.microsoft.com/dotnet/aspnet:10.0
+# `rewriteproxy tune` draws its charts with ScottPlot/SkiaSharp, which needs a font to write any text.
+RUN apt-get update && apt-get install -y --no-install-recommends fonts-dejavu-core && rm -rf /var/lib/apt/lists/*
 WORKDIR /app
 COPY --from=build /app ./
 # The cache can hold questions with personal data: it lives on its own volume, owned by the non-root user.

@@ -7,6 +7,7 @@ need=()
 command -v promtool   >/dev/null 2>&1 || need+=(prometheus)
 command -v prometheus >/dev/null 2>&1 || need+=(prometheus)
 [ -d /usr/share/wordnet ] || need+=(wordnet-base)
+[ -d /usr/share/fonts/truetype/dejavu ] || need+=(fonts-dejavu-core)   # text in the tune charts
 if [ ${#need[@]} -gt 0 ]; then
   echo "test.sh: installing ${need[*]}"
   export DEBIAN_FRONTEND=noninteractive

@@ -9,6 +9,7 @@ using Microsoft.Data.Sqlite;
 using Microsoft.Extensions.Configuration;
 using Microsoft.Extensions.DependencyInjection;
 using RewriteProxy.Cache;
+using RewriteProxy.Embedding;
 using RewriteProxy.Hosting;
 using RewriteProxy.Lanes;
 
@@ -74,6 +75,7 @@ public static class DemoRunner
                 var lanes = DemoWorkload.Lanes.Select(l => Summarize(l, observations, upstream, before, after)).ToList();
                 var entries = (store as SqliteRewriteStore)!.List(null, null, null, int.MaxValue);
                 var checks = DemoWorkload.Lanes.SelectMany(l => Reconcile(l, observations, upstream, before, after, stats, entries, events)).ToList();
+                var reports = await WriteTuneReportsAsync(settings, options, storePath, app.Services.GetRequiredService<IEmbedder>(), cancel);
                 await app.StopAsync(cancel);
                 var result = new DemoResult
                 {
@@ -85,7 +87,7 @@ public static class DemoRunner
                     UpstreamBaseUrl = upstream.BaseUrl,
                     KeptStore = settings.Keep ? storePath : null,
                 };
-                return result with { Written = WriteSummary(result) };
+                return result with { Written = [.. WriteSummary(result), .. reports] };
             }
         }
         finally
@@ -275,6 +277,30 @@ public static class DemoRunner
     }
 
     /// <summary>Writes the run's result as JSON under the output folder, for scripts and for comparing runs.</summary>
+    /// <summary>
+    /// The tuning report of each lane over this run's event log (<c>rewriteproxy tune</c>), into <c>{out}/tune-{lane}</c>.
+    /// Its console summary is not shown: the demo's own tables say the same.
+    /// </summary>
+    static async Task<IReadOnlyList<string>> WriteTuneReportsAsync(DemoSettings settings, RewriteProxyOptions options, string storePath,
+        IEmbedder embedder, CancellationToken cancel)
+    {
+        if (settings.OutDirectory is not { } dir) return [];
+        var quiet = Spectre.Console.AnsiConsole.Create(new Spectre.Console.AnsiConsoleSettings
+        {
+            Out = new Spectre.Console.AnsiConsoleOutput(TextWriter.Null),
+        });
+        var written = new List<string>();
+        foreach (var lane in DemoWorkload.Lanes)
+        {
+            var outDir = Path.GetFullPath(Path.Combine(dir, "tune-" + lane));
+            var request = new TuneRequest(lane, TimeSpan.FromDays(1), null, outDir, TuneSweep.DefaultMaxFalseHits, TuneSweep.DefaultKeepGood, storePath);
+            var exit = await TuneCommand.RunAsync(request, options, () => embedder, quiet, cancel);
+            if (exit != ExitCodes.Ok) throw new DemoException($"the tuning report of lane '{lane}' failed (exit {exit})");
+            written.Add(Path.Combine(outDir, "report.md"));
+        }
+        return written;
+    }
+
     static IReadOnlyList<string> WriteSummary(DemoResult result)
     {
         if (result.Settings.OutDirectory is not { } dir) return [];

@@ -15,7 +15,7 @@ public sealed record HnswSettings
 
     /// <summary>Candidate list size while searching ("ef"); the main recall/latency knob, chosen from the
     /// recall@1 measurement at 1M entries.</summary>
-    public int ExpansionSearch { get; init; } = 128;
+    public int ExpansionSearch { get; init; } = 256;
 
     /// <summary>How many graph candidates are reranked with exact full-precision similarity; at least k.</summary>
     public int RerankCandidates { get; init; } = 16;

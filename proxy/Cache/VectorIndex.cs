@@ -21,7 +21,7 @@ public sealed class VectorIndex : IDisposable
 
     /// <summary>Entries per scope at which a graph is built. Chosen from the exact-vs-HNSW lookup and build
     /// measurements in notes/index.md: below it brute force is fast enough and needs no build.</summary>
-    public const int DefaultSwitchSize = 50_000;
+    public const int DefaultSwitchSize = 10_000;
 
     private readonly ConcurrentDictionary<string, ScopeIndex> _scopes = new(StringComparer.Ordinal);
     private readonly Dictionary<long, ScopeIndex> _scopeOf = [];

@@ -12,7 +12,7 @@ namespace RewriteProxy.Benchmarks;
 /// Lookup time of one scope holding <see cref="Size"/> clustered entries, searched exactly or through the HNSW
 /// graph. The setup (one per process) also records what BenchmarkDotNet does not: bulk load time, memory,
 /// recall@1 of the graph against brute force, and p50/p99 of lookups from a Stopwatch loop; these go to the
-/// console and to BenchmarkDotNet.Artifacts/index-measurements.md.
+/// console as one table row prefixed 'index-measurement'.
 /// </summary>
 [Config(typeof(IndexBenchmarkConfig))]
 public class IndexLookupBenchmarks
@@ -90,11 +90,8 @@ public class IndexLookupBenchmarks
             $"| {Mode} | {Size:N0} | {build.Elapsed.TotalSeconds:F2} | {managed / 1048576.0:F0} | {rss / 1048576.0:F0} | " +
             $"{(double.IsNaN(recall) ? "-" : recall.ToString("F3", CultureInfo.InvariantCulture))} | " +
             $"{times[TimedLookups / 2]:F3} | {times[TimedLookups * 99 / 100]:F3} | {times[^1]:F3} |");
+        // BenchmarkDotNet copies the child process's console into its log: grep 'index-measurement'.
         Console.WriteLine("index-measurement " + line);
-        // BDN runs the setup in a child process whose directory is deep in the artifacts tree; write beside the
-        // artifacts root when we can find it, otherwise in the current directory.
-        var artifacts = FindArtifacts() ?? Environment.CurrentDirectory;
-        File.AppendAllText(Path.Combine(artifacts, "index-measurements.md"), line + Environment.NewLine);
     }
 
     [Benchmark]
@@ -106,15 +103,6 @@ public class IndexLookupBenchmarks
 
     [GlobalCleanup]
     public void Cleanup() => _index.Dispose();
-
-    private static string? FindArtifacts()
-    {
-        for (var dir = new DirectoryInfo(Environment.CurrentDirectory); dir is not null; dir = dir.Parent)
-        {
-            if (dir.Name == "BenchmarkDotNet.Artifacts") return dir.FullName;
-        }
-        return null;
-    }
 }
 
 /// <summary>One launch, few iterations: enough to rank exact against graph on a shared 2-core machine.</summary>

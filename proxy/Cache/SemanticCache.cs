@@ -53,17 +53,34 @@ public sealed class SemanticCache
     public IRewriteStore Store => _store;
     public AnchorGuard Guard => _guard;
 
-    /// <summary>Opens the store and rebuilds the index from it; logs how long that took.</summary>
-    public void Start()
+    /// <summary>Opens the store (migrations included); throws <see cref="StoreException"/> when it cannot.</summary>
+    public void Start() => _store.Open();
+
+    /// <summary>
+    /// Rebuilds the vector index from the store, off the request path: a million entries take minutes to index
+    /// (DEVELOPERS.md). Meanwhile exact lookups work as usual and semantic lookups see what is loaded so far, so
+    /// a call that would have been a semantic hit is a miss until then. Logs how long it took.
+    /// </summary>
+    public Task LoadIndexAsync() => Task.Run(() =>
     {
         var watch = Stopwatch.StartNew();
-        _store.Open();
-        var rows = _store.ReadVectors(_embedder.ModelId);
-        var loaded = 0;
-        _index.Load(Count(rows, () => loaded++));
-        _log.LogInformation("cache: index rebuilt with {Count} vectors of model {ModelId} in {Ms} ms", loaded, _embedder.ModelId,
-            watch.ElapsedMilliseconds);
-    }
+        try
+        {
+            var rows = _store.ReadVectors(_embedder.ModelId);
+            var loaded = 0;
+            _index.Load(Count(rows, () => loaded++));
+            IndexReady = true;
+            _log.LogInformation("cache: index rebuilt with {Count} vectors of model {ModelId} in {Ms} ms", loaded, _embedder.ModelId,
+                watch.ElapsedMilliseconds);
+        }
+        catch (Exception e) when (e is StoreException or InvalidOperationException or OutOfMemoryException)
+        {
+            _log.LogError("cache: the index could not be rebuilt ({Reason}); semantic lookups see only new entries", e.Message);
+        }
+    });
+
+    /// <summary>True once the start-up rebuild of the index has finished.</summary>
+    public volatile bool IndexReady;
 
     static IEnumerable<(string, long, float[])> Count(IEnumerable<IndexRow> rows, Action each)
     {

@@ -87,6 +87,7 @@ public static class ProxyApp
         {
             var cache = app.Services.GetRequiredService<SemanticCache>();
             cache.Start();
+            app.Lifetime.ApplicationStarted.Register(() => _ = cache.LoadIndexAsync());
         }
         catch (EmbedderLoadException e)
         {

@@ -55,6 +55,10 @@ public sealed class TestProxy : IAsyncDisposable
             overrides?.Invoke(services);
         });
         await app.StartAsync();
+        // The index is rebuilt in the background; tests that restart a proxy expect semantic hits at once.
+        var cache = app.Services.GetRequiredService<RewriteProxy.Cache.SemanticCache>();
+        var waited = System.Diagnostics.Stopwatch.StartNew();
+        while (!cache.IndexReady && waited.Elapsed < TimeSpan.FromSeconds(20)) await Task.Delay(10);
         return new TestProxy(app, options);
     }
 

@@ -1,4 +1,3 @@
-using System.Diagnostics;
 using Microsoft.Extensions.DependencyInjection;
 using RewriteProxy.Cache;
 using RewriteProxy.Tests.Fixtures;
@@ -83,13 +82,15 @@ public sealed class LaneStoreTests : IAsyncLifetime
         await using var proxy = await StartAsync(path);
         await proxy.AskAsync("draft", "How many guests may a member bring?");
         await FlushAsync(proxy);
+        var recreated = new TaskCompletionSource(TaskCreationOptions.RunContinuationsAsynchronously);
+        proxy.Services.GetRequiredService<IRewriteStore>().Reset += () => recreated.TrySetResult();
         foreach (var suffix in new[] { "", "-wal", "-shm" }) File.Delete(path + suffix);
 
         var during = await proxy.AskAsync("draft", "How many guests may a member bring?");
         Assert.Equal(200, during.Status);
         Assert.Contains(during.Cache, new[] { "bypass", "miss" });
 
-        await WaitUntilAsync(() => File.Exists(path));
+        await recreated.Task.WaitAsync(TimeSpan.FromSeconds(10));
         var stored = await proxy.AskAsync("draft", "Is there a locker room at the east gate?");
         var again = await proxy.AskAsync("draft", "Is there a locker room at the east gate?");
         Assert.Equal("miss", stored.Cache);
@@ -103,6 +104,8 @@ public sealed class LaneStoreTests : IAsyncLifetime
         await using var proxy = await StartAsync(path);
         await proxy.AskAsync("draft", "Can I pay the library fine online?");
         await FlushAsync(proxy);
+        var recreated = new TaskCompletionSource(TaskCreationOptions.RunContinuationsAsynchronously);
+        proxy.Services.GetRequiredService<IRewriteStore>().Reset += () => recreated.TrySetResult();
         Microsoft.Data.Sqlite.SqliteConnection.ClearAllPools();
         // Overwrite the SQLite header ("SQLite format 3\0", sqlite.org/fileformat.html §1.3) and the first pages.
         await using (var file = new FileStream(path, FileMode.Open, FileAccess.Write, FileShare.ReadWrite))
@@ -114,7 +117,8 @@ public sealed class LaneStoreTests : IAsyncLifetime
         Assert.Equal("answer", during.Content.Split(':')[0].Split(' ')[^1]);
 
         var dir = Path.GetDirectoryName(path)!;
-        await WaitUntilAsync(() => Directory.GetFiles(dir, "*.corrupt-*").Length > 0);
+        await recreated.Task.WaitAsync(TimeSpan.FromSeconds(10));
+        Assert.NotEmpty(Directory.GetFiles(dir, "*.corrupt-*"));
         await proxy.AskAsync("draft", "Are e-books free for members?");
         Assert.Equal("hit-exact", (await proxy.AskAsync("draft", "Are e-books free for members?")).Cache);
     }
@@ -135,15 +139,5 @@ public sealed class LaneStoreTests : IAsyncLifetime
         Assert.Equal(200, second.Status);
         Assert.NotEqual("hit-exact", second.Cache); // the first answer could not be stored
         Assert.Equal(3, _upstream.ChatCalls);
-    }
-
-    static async Task WaitUntilAsync(Func<bool> condition)
-    {
-        var watch = Stopwatch.StartNew();
-        while (!condition())
-        {
-            if (watch.Elapsed > TimeSpan.FromSeconds(10)) Assert.Fail("condition not met within 10 s");
-            await Task.Delay(50);
-        }
     }
 }

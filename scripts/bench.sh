@@ -180,7 +180,8 @@ minus() { awk -v a="$1" -v b="$2" 'BEGIN{ printf "%+.3f", a-b }'; }
 verdict() { awk -v v="$1" -v op="$2" -v t="$3" 'BEGIN{ ok = (op=="<=") ? (v<=t) : (v>=t); print ok ? "met" : "NOT met" }'; }
 
 machine() {
-  echo "machine: $(nproc) cores, $(awk -F': ' '/model name/{print $2; exit}' /proc/cpuinfo), $(date -u +%Y-%m-%dT%H:%MZ)"
+  echo "machine: $(nproc) cores, $(awk -F': ' '/model name/{print $2; exit}' /proc/cpuinfo), $(date -u +%Y-%m-%dT%H:%MZ), load $(loadavg)"
+  [ "$mode" = soak ] && return 0
   echo "wrk: ${threads} threads, ${connections} connections, ${duration} after ${warmup} unrecorded; pinning: $([ ${#on_sut[@]} -gt 0 ] && echo 'under test on core 0, wrk + upstream on core 1' || echo off)"
 }
 
@@ -240,9 +241,9 @@ run_throughput() {
 rss_kb() { awk '/^VmRSS:/{print $2}' "/proc/$1/status"; }
 
 run_soak() {
-  local minutes=$1 warmup=${BENCH_WARMUP_S:-120} every=${BENCH_SAMPLE_S:-10} max_growth=${BENCH_MAX_RSS_GROWTH:-5}
+  local minutes=$1 warmup_s=${BENCH_WARMUP_S:-120} every=${BENCH_SAMPLE_S:-10} max_growth=${BENCH_MAX_RSS_GROWTH:-5}
   local seconds=$((minutes * 60))
-  if [ "$seconds" -le $((warmup + 3 * every)) ]; then echo "bench.sh: soak needs more than warm-up + 3 samples" >&2; exit 2; fi
+  if [ "$seconds" -le $((warmup_s + 3 * every)) ]; then echo "bench.sh: soak needs more than warm-up + 3 samples" >&2; exit 2; fi
   machine
   start_upstream
   # Bounded structures are made small so that they fill during the warm-up and what follows is the steady state:
@@ -254,7 +255,7 @@ run_soak() {
   expect_cache "$hit_body" miss
   expect_cache "$para_body" hit-semantic
   local delay=${BENCH_DELAY_MS:-100} conns=${BENCH_SOAK_CONNECTIONS:-4}
-  echo "soak: ${minutes} min, ${conns} connections each waiting ${delay} ms between requests; mix per 6 calls: exact hit, miss, passthrough JSON, streamed hit, passthrough SSE, semantic hit"
+  echo "soak: ${minutes} min (warm-up ${warmup_s} s, VmRSS every ${every} s), pinning $([ ${#on_sut[@]} -gt 0 ] && echo 'proxy on core 0, wrk + upstream on core 1' || echo off), ${conns} connections each waiting ${delay} ms between requests; mix per 6 calls: exact hit, miss, passthrough JSON, streamed hit, passthrough SSE, semantic hit"
   local before; before=$(loadavg)
   BENCH_DELAY_MS=$delay BENCH_LANE_PATH=/lane/draft/v1/chat/completions \
   BENCH_HIT_BODY=$hit_body BENCH_STREAM_HIT_BODY=$stream_hit_body BENCH_PARAPHRASE_BODY=$para_body \
@@ -278,7 +279,7 @@ run_soak() {
   [ -n "$entries" ] && echo "$entries"
   # Growth: the mean of the last 3 samples against the mean of the first 3 after the warm-up (one sample is one GC's luck).
   local post=()
-  for i in "${!times[@]}"; do [ "${times[$i]}" -gt "$warmup" ] && post+=("${samples[$i]}"); done
+  for i in "${!times[@]}"; do [ "${times[$i]}" -gt "$warmup_s" ] && post+=("${samples[$i]}"); done
   if [ ${#post[@]} -lt 3 ]; then echo "bench.sh: too few samples after warm-up" >&2; exit 1; fi
   local n=${#post[@]}
   local base=$(( (post[0] + post[1] + post[2]) / 3 )) last=$(( (post[n-1] + post[n-2] + post[n-3]) / 3 ))

@@ -25,6 +25,7 @@ pin=${BENCH_PIN:-1}
 upstream_port=${BENCH_UPSTREAM_PORT:-18091}
 nginx_port=${BENCH_NGINX_PORT:-18092}
 proxy_port=${BENCH_PROXY_PORT:-18093}
+forwarder_port=${BENCH_FORWARDER_PORT:-18094}
 
 # ---- what it needs ------------------------------------------------------------------------------------------------
 need=()
@@ -45,6 +46,10 @@ export DOTNET_CLI_TELEMETRY_OPTOUT=1 DOTNET_NOLOGO=1
 echo "bench.sh: building Release"
 dotnet build proxy/RewriteProxy.csproj -c Release -v q -nologo >/dev/null
 proxy_bin="$root/proxy/bin/Release/net10.0/rewriteproxy"
+if [ "$mode" = run ]; then
+  dotnet build scripts/bench/forwarder/Forwarder.csproj -c Release -v q -nologo >/dev/null
+fi
+forwarder_bin="$root/scripts/bench/forwarder/bin/Release/net10.0/Forwarder"
 
 # ---- processes, by PID ----------------------------------------------------------------------------------------------
 work=$(mktemp -d /tmp/rewriteproxy-bench.XXXXXX)
@@ -116,6 +121,12 @@ start_nginx_proxy() {
   wait_http "http://127.0.0.1:$nginx_port/v1/models"
 }
 
+start_forwarder() {
+  "${on_sut[@]}" "$forwarder_bin" "http://127.0.0.1:$forwarder_port" "http://127.0.0.1:$upstream_port" >"$work/forwarder.log" 2>&1 &
+  forwarder_pid=$!; pids+=($forwarder_pid)
+  wait_http "http://127.0.0.1:$forwarder_port/v1/models" 600
+}
+
 proxy_pid=""
 start_proxy() { # name extra-args...
   local name=$1; shift
@@ -128,13 +139,14 @@ start_proxy() { # name extra-args...
   wait_http "http://127.0.0.1:$proxy_port/readyz" 600
 }
 
-stop_proxy() {
-  stop_pid "$proxy_pid"
-  local kept=()
-  for p in "${pids[@]}"; do [ "$p" != "$proxy_pid" ] && kept+=("$p"); done
+stop_tracked() { # pid: ends it and forgets it, so the exit trap never signals a reused PID
+  stop_pid "$1"
+  local kept=() p
+  for p in "${pids[@]}"; do [ "$p" != "$1" ] && kept+=("$p"); done
   pids=("${kept[@]}")
-  proxy_pid=""
 }
+
+stop_proxy() { stop_tracked "$proxy_pid"; proxy_pid=""; }
 
 lane_call() { # body -> prints X-Rewrite-Cache
   curl -sS -o /dev/null -D - -H 'Content-Type: application/json' -H 'Authorization: Bearer sk-bench-tenant' \
@@ -197,6 +209,10 @@ run_throughput() {
   start_proxy passthrough
   measure proxy-json       "http://127.0.0.1:$proxy_port/v1/chat/completions"    "$json_body"
   measure nginx-json       "http://127.0.0.1:$nginx_port/v1/chat/completions"    "$json_body"
+  # A/B floor: Kestrel + YARP alone (scripts/bench/forwarder), started only while it is measured.
+  start_forwarder
+  measure bare-yarp-json   "http://127.0.0.1:$forwarder_port/v1/chat/completions" "$json_body"
+  stop_tracked "$forwarder_pid"
   measure direct-sse       "http://127.0.0.1:$upstream_port/v1/chat/completions" "$stream_body" "X-Bench-Stream: 1"
   measure proxy-sse        "http://127.0.0.1:$proxy_port/v1/chat/completions"    "$stream_body" "X-Bench-Stream: 1"
   measure nginx-sse        "http://127.0.0.1:$nginx_port/v1/chat/completions"    "$stream_body" "X-Bench-Stream: 1"
@@ -233,6 +249,8 @@ run_throughput() {
   echo "| proxy p50 − direct p50 (ms) | $(minus "${p50[proxy-json]}" "${p50[direct-json]}") | $(minus "${p50[proxy-sse]}" "${p50[direct-sse]}") | ≤ 0.5: $(verdict "$(minus "${p50[proxy-json]}" "${p50[direct-json]}")" '<=' 0.5) (JSON) |"
   echo "| nginx p50 − direct p50 (ms) | $(minus "${p50[nginx-json]}" "${p50[direct-json]}") | $(minus "${p50[nginx-sse]}" "${p50[direct-sse]}") | |"
   echo "| proxy without request log / with (req/s) | $(ratio "${rps[proxy-json-nolog]}" "${rps[proxy-json]}") | | |"
+  echo "| proxy / bare Kestrel+YARP (req/s) | $(ratio "${rps[proxy-json]}" "${rps[bare-yarp-json]}") | | |"
+  echo "| bare Kestrel+YARP / nginx (req/s) | $(ratio "${rps[bare-yarp-json]}" "${rps[nginx-json]}") | | |"
   echo "| exact hit / passthrough (req/s) | $(ratio "${rps[exact-hit]}" "${rps[proxy-json]}") | | |"
   echo "| semantic hit / exact hit (req/s) | $(ratio "${rps[semantic-hit]}" "${rps[exact-hit]}") | | |"
 }
@@ -292,8 +310,5 @@ run_soak() {
   echo "soak: ok"
 }
 
-case "$mode" in
-  run) run_throughput ;;
-  soak) run_soak "$soak_minutes" ;;
-  *) echo "usage: scripts/bench.sh [run | soak [minutes]]" >&2; exit 2 ;;
-esac
+# One line, parsed whole before it runs: editing this file during a run cannot change what the run does next.
+case "$mode" in run) run_throughput ;; soak) run_soak "$soak_minutes" ;; *) echo "usage: scripts/bench.sh [run | soak [minutes]]" >&2; exit 2 ;; esac; exit $?

@@ -181,6 +181,16 @@ public class HitBenchmarks
     [Benchmark]
     public string Exact_hit() => PostAsync(questionBody).GetAwaiter().GetResult();
 
+    /// <summary>The floor of any call through the proxy on this machine: one GET round trip that does no work.</summary>
+    [Benchmark]
+    public int Health_check_round_trip() => HealthAsync().GetAwaiter().GetResult();
+
+    async Task<int> HealthAsync()
+    {
+        using var response = await client.GetAsync("/healthz");
+        return (await response.Content.ReadAsByteArrayAsync()).Length;
+    }
+
     [GlobalCleanup]
     public void Cleanup()
     {

@@ -1,0 +1,314 @@
+#!/usr/bin/env bash
+# Loopback benchmarks of the Release proxy (not run in CI). Every process it starts is recorded by PID and ended by PID.
+#
+#   scripts/bench.sh               throughput and latency: upstream alone, RewriteProxy passthrough, nginx as a plain
+#                                  reverse proxy (JSON and SSE), the request-log A/B, exact and semantic lane hits
+#   scripts/bench.sh soak [min]    mixed traffic at a bounded rate for min minutes (default 10); VmRSS sampled every
+#                                  10 s; exits 1 when it grows more than 5 % after the 2-minute warm-up
+#
+# Knobs (environment): BENCH_DURATION (15s), BENCH_WARMUP (3s, unrecorded, before each run), BENCH_CONNECTIONS (32), BENCH_PIN (1), BENCH_WARMUP_S (120),
+# BENCH_SAMPLE_S (10), BENCH_SOAK_CONNECTIONS (4), BENCH_DELAY_MS (100), BENCH_MAX_RSS_GROWTH (5).
+# Why these: 15 s at 32 connections is long enough for the tiered JIT to settle and short enough to repeat; 32
+# connections keep every process busy without measuring a queue; 2 wrk threads = this machine's 2 cores (wrk's own
+# advice: threads no more than cores).
+set -euo pipefail
+cd "$(dirname "$0")/.."
+root=$(pwd)
+
+mode=${1:-run}
+soak_minutes=${2:-10}
+duration=${BENCH_DURATION:-15s}
+warmup=${BENCH_WARMUP:-3s}
+connections=${BENCH_CONNECTIONS:-32}
+threads=2
+pin=${BENCH_PIN:-1}
+upstream_port=${BENCH_UPSTREAM_PORT:-18091}
+nginx_port=${BENCH_NGINX_PORT:-18092}
+proxy_port=${BENCH_PROXY_PORT:-18093}
+forwarder_port=${BENCH_FORWARDER_PORT:-18094}
+
+# ---- what it needs ------------------------------------------------------------------------------------------------
+need=()
+command -v wrk     >/dev/null 2>&1 || need+=(wrk)
+command -v nginx   >/dev/null 2>&1 || [ -x /usr/sbin/nginx ] || need+=(nginx)
+command -v taskset >/dev/null 2>&1 || need+=(util-linux)
+command -v curl    >/dev/null 2>&1 || need+=(curl)
+if [ ${#need[@]} -gt 0 ]; then
+  echo "bench.sh: installing ${need[*]}"
+  export DEBIAN_FRONTEND=noninteractive
+  sudo_cmd=""; [ "$(id -u)" -ne 0 ] && sudo_cmd="sudo"
+  $sudo_cmd apt-get update -qq
+  $sudo_cmd apt-get install -y -qq --no-install-recommends "${need[@]}" >/dev/null
+fi
+nginx_bin=$(command -v nginx || echo /usr/sbin/nginx)
+
+export DOTNET_CLI_TELEMETRY_OPTOUT=1 DOTNET_NOLOGO=1
+echo "bench.sh: building Release"
+dotnet build proxy/RewriteProxy.csproj -c Release -v q -nologo >/dev/null
+proxy_bin="$root/proxy/bin/Release/net10.0/rewriteproxy"
+if [ "$mode" = run ]; then
+  dotnet build scripts/bench/forwarder/Forwarder.csproj -c Release -v q -nologo >/dev/null
+fi
+forwarder_bin="$root/scripts/bench/forwarder/bin/Release/net10.0/Forwarder"
+
+# ---- processes, by PID ----------------------------------------------------------------------------------------------
+work=$(mktemp -d /tmp/rewriteproxy-bench.XXXXXX)
+chmod 755 "$work"
+pids=()
+stop_pid() {
+  local pid=$1
+  kill -TERM "$pid" 2>/dev/null || return 0
+  for _ in $(seq 50); do kill -0 "$pid" 2>/dev/null || break; sleep 0.1; done
+  kill -KILL "$pid" 2>/dev/null || true
+  wait "$pid" 2>/dev/null || true
+}
+cleanup() {
+  for pid in "${pids[@]}"; do stop_pid "$pid"; done
+  [ "${BENCH_KEEP:-0}" = 1 ] && echo "bench.sh: kept $work" || rm -rf "$work"
+}
+trap cleanup EXIT
+trap 'exit 130' INT TERM
+
+# Pinning: the process under test (RewriteProxy or nginx as a proxy) gets core 0 to itself; wrk and the upstream share
+# core 1. Without it, wrk, the upstream and the proxy fight over two cores and the winner decides the result.
+on_sut=(); on_harness=()
+if [ "$pin" = 1 ] && [ "$(nproc)" -ge 2 ]; then on_sut=(taskset -c 0); on_harness=(taskset -c 1); fi
+
+loadavg() { cut -d' ' -f1-3 /proc/loadavg; }
+
+wait_http() { # url tries
+  for _ in $(seq "${2:-200}"); do curl -fsS -o /dev/null "$1" 2>/dev/null && return 0; sleep 0.1; done
+  echo "bench.sh: $1 did not come up" >&2; return 1
+}
+
+# ---- the scripted upstream and its fixed answers -----------------------------------------------------------------
+question="How long can I keep a shared bike before the overtime fee starts?"
+paraphrase="How long may I keep a shared bike before the overtime fee begins?"
+# The fixed draft answers the benchmark question (invented scenario), so the drift guard accepts it and stores it.
+draft="Riverton bike-share rides are free for the first thirty minutes on an annual plan. After that an overtime fee starts and is charged for every further fifteen minutes you keep the bike, until it is docked again."
+completion_json=$(jq -cn --arg c "$draft" '{id:"chatcmpl-bench",object:"chat.completion",created:1767225600,model:"bench-model",
+  choices:[{index:0,message:{role:"assistant",content:$c},finish_reason:"stop"}],usage:{prompt_tokens:24,completion_tokens:44,total_tokens:68}}')
+sse_text=""
+for piece in "Riverton" " bike-share" " rides" " are" " free" " for" " thirty" " minutes."; do
+  sse_text+="data: $(jq -cn --arg p "$piece" '{id:"chatcmpl-bench",object:"chat.completion.chunk",created:1767225600,model:"bench-model",choices:[{index:0,delta:{content:$p},finish_reason:null}]}')\n\n"
+done
+sse_text+='data: {"id":"chatcmpl-bench","object":"chat.completion.chunk","created":1767225600,"model":"bench-model","choices":[{"index":0,"delta":{},"finish_reason":"stop"}]}\n\ndata: [DONE]\n\n'
+
+fill() { # template output
+  local esc_json esc_sse
+  esc_json=$(printf '%s' "$completion_json" | sed -e 's/[\\&|]/\\&/g')
+  esc_sse=$(printf '%s' "$sse_text" | sed -e 's/[\\&|]/\\&/g')
+  sed -e "s|@DIR@|$work|g" -e "s|@UPSTREAM_PORT@|$upstream_port|g" -e "s|@NGINX_PORT@|$nginx_port|g" \
+      -e "s|@JSON@|$esc_json|" -e "s|@SSE@|$esc_sse|" "$1" > "$2"
+}
+
+chat_body() { # question [stream]
+  jq -cn --arg q "$1" --argjson s "${2:-false}" '{model:"bench-model",temperature:0,stream:$s,
+    messages:[{role:"system",content:"Write a short passage that answers the question."},{role:"user",content:$q}]}'
+}
+
+start_upstream() {
+  fill scripts/bench/upstream.nginx.conf "$work/upstream.conf"
+  "${on_harness[@]}" "$nginx_bin" -p "$work" -c "$work/upstream.conf" -e "$work/upstream-error.log" 2>>"$work/upstream-error.log" &
+  pids+=($!)
+  wait_http "http://127.0.0.1:$upstream_port/v1/models"
+}
+
+start_nginx_proxy() {
+  fill scripts/bench/proxy.nginx.conf "$work/proxy.conf"
+  "${on_sut[@]}" "$nginx_bin" -p "$work" -c "$work/proxy.conf" -e "$work/proxy-error.log" 2>>"$work/proxy-error.log" &
+  nginx_pid=$!; pids+=($nginx_pid)
+  wait_http "http://127.0.0.1:$nginx_port/v1/models"
+}
+
+start_forwarder() {
+  "${on_sut[@]}" "$forwarder_bin" "http://127.0.0.1:$forwarder_port" "http://127.0.0.1:$upstream_port" >"$work/forwarder.log" 2>&1 &
+  forwarder_pid=$!; pids+=($forwarder_pid)
+  wait_http "http://127.0.0.1:$forwarder_port/v1/models" 600
+}
+
+proxy_pid=""
+start_proxy() { # name extra-args...
+  local name=$1; shift
+  mkdir -p "$work/$name"
+  # Started from the repository root, so it reads config/rewriteproxy.json (lanes draft and siblings) as shipped.
+  "${on_sut[@]}" "$proxy_bin" serve --urls "http://127.0.0.1:$proxy_port" \
+    "--Upstream:BaseUrl=http://127.0.0.1:$upstream_port/v1" "--Store:Path=$work/$name/cache.db" "$@" \
+    >"$work/$name/proxy.log" 2>&1 &
+  proxy_pid=$!; pids+=($proxy_pid)
+  wait_http "http://127.0.0.1:$proxy_port/readyz" 600
+}
+
+stop_tracked() { # pid: ends it and forgets it, so the exit trap never signals a reused PID
+  stop_pid "$1"
+  local kept=() p
+  for p in "${pids[@]}"; do [ "$p" != "$1" ] && kept+=("$p"); done
+  pids=("${kept[@]}")
+}
+
+stop_proxy() { stop_tracked "$proxy_pid"; proxy_pid=""; }
+
+lane_call() { # body -> prints X-Rewrite-Cache
+  curl -sS -o /dev/null -D - -H 'Content-Type: application/json' -H 'Authorization: Bearer sk-bench-tenant' \
+    --data-binary "$1" "http://127.0.0.1:$proxy_port/lane/draft/v1/chat/completions" \
+    | tr -d '\r' | awk -F': ' 'tolower($1)=="x-rewrite-cache"{print $2}'
+}
+
+expect_cache() { # body expected
+  local got; got=$(lane_call "$1")
+  if [ "$got" != "$2" ]; then echo "bench.sh: expected X-Rewrite-Cache: $2, got '$got'" >&2; exit 1; fi
+}
+
+# ---- wrk runs ------------------------------------------------------------------------------------------------------
+to_ms() { # wrk latency like 245.00us | 1.23ms | 2.01s
+  awk -v v="$1" 'BEGIN{ n=v+0; if (v ~ /us$/) n/=1000; else if (v ~ /ms$/) n=n; else if (v ~ /m$/) n*=60000; else if (v ~ /s$/) n*=1000; printf "%.3f", n }'
+}
+
+rows=()
+declare -A rps p50 p90 p99
+measure() { # name url body [header]
+  local name=$1 url=$2 out="$work/wrk-$1.txt" before after
+  # Unrecorded warm-up: the JIT tiers up and the connection pools fill before the measured run starts.
+  BENCH_BODY=$3 BENCH_HEADER=${4:-} "${on_harness[@]}" wrk -t"$threads" -c"$connections" -d"$warmup" \
+    -s scripts/bench/post.lua "$url" > "$work/warmup-$1.txt"
+  before=$(loadavg)
+  BENCH_BODY=$3 BENCH_HEADER=${4:-} "${on_harness[@]}" wrk -t"$threads" -c"$connections" -d"$duration" --latency \
+    -s scripts/bench/post.lua "$url" > "$out"
+  after=$(loadavg)
+  if grep -q -E 'Non-2xx|Socket errors' "$out"; then
+    echo "bench.sh: $name had errors:" >&2; grep -E 'Non-2xx|Socket errors' "$out" >&2; exit 1
+  fi
+  rps[$name]=$(awk '/^Requests\/sec:/{print $2}' "$out")
+  p50[$name]=$(to_ms "$(awk '$1=="50%"{print $2}' "$out")")
+  p90[$name]=$(to_ms "$(awk '$1=="90%"{print $2}' "$out")")
+  p99[$name]=$(to_ms "$(awk '$1=="99%"{print $2}' "$out")")
+  rows+=("$name")
+  printf '  %-34s %10s req/s  p50 %8s ms  p90 %8s ms  p99 %8s ms   load %s -> %s\n' \
+    "$name" "${rps[$name]}" "${p50[$name]}" "${p90[$name]}" "${p99[$name]}" "$before" "$after"
+}
+
+ratio() { awk -v a="$1" -v b="$2" 'BEGIN{ printf "%.2f", a/b }'; }
+minus() { awk -v a="$1" -v b="$2" 'BEGIN{ printf "%+.3f", a-b }'; }
+verdict() { awk -v v="$1" -v op="$2" -v t="$3" 'BEGIN{ ok = (op=="<=") ? (v<=t) : (v>=t); print ok ? "met" : "NOT met" }'; }
+
+machine() {
+  echo "machine: $(nproc) cores, $(awk -F': ' '/model name/{print $2; exit}' /proc/cpuinfo), $(date -u +%Y-%m-%dT%H:%MZ), load $(loadavg)"
+  [ "$mode" = soak ] && return 0
+  echo "wrk: ${threads} threads, ${connections} connections, ${duration} after ${warmup} unrecorded; pinning: $([ ${#on_sut[@]} -gt 0 ] && echo 'under test on core 0, wrk + upstream on core 1' || echo off)"
+}
+
+run_throughput() {
+  local json_body stream_body
+  json_body=$(chat_body "$question")
+  stream_body=$(chat_body "$question" true)
+  machine
+  start_upstream
+  start_nginx_proxy
+  echo "passthrough (POST /v1/chat/completions, $(printf '%s' "$json_body" | wc -c)-byte body; JSON $(printf '%s' "$completion_json" | wc -c) bytes back):"
+  measure direct-json      "http://127.0.0.1:$upstream_port/v1/chat/completions" "$json_body"
+  start_proxy passthrough
+  measure proxy-json       "http://127.0.0.1:$proxy_port/v1/chat/completions"    "$json_body"
+  measure nginx-json       "http://127.0.0.1:$nginx_port/v1/chat/completions"    "$json_body"
+  # A/B floor: Kestrel + YARP alone (scripts/bench/forwarder), started only while it is measured.
+  start_forwarder
+  measure bare-yarp-json   "http://127.0.0.1:$forwarder_port/v1/chat/completions" "$json_body"
+  stop_tracked "$forwarder_pid"
+  measure direct-sse       "http://127.0.0.1:$upstream_port/v1/chat/completions" "$stream_body" "X-Bench-Stream: 1"
+  measure proxy-sse        "http://127.0.0.1:$proxy_port/v1/chat/completions"    "$stream_body" "X-Bench-Stream: 1"
+  measure nginx-sse        "http://127.0.0.1:$nginx_port/v1/chat/completions"    "$stream_body" "X-Bench-Stream: 1"
+
+  echo "lane hits (POST /lane/draft/v1/chat/completions):"
+  expect_cache "$json_body" miss
+  expect_cache "$json_body" hit-exact
+  measure exact-hit        "http://127.0.0.1:$proxy_port/lane/draft/v1/chat/completions" "$json_body"
+  stop_proxy
+
+  # A/B: the same passthrough with the one-line-per-request log turned down to Warning.
+  start_proxy no-request-log --Logging:LogLevel:RewriteProxy.Hosting.RequestLog=Warning
+  measure proxy-json-nolog "http://127.0.0.1:$proxy_port/v1/chat/completions" "$json_body"
+  stop_proxy
+
+  # Embedding:CacheSize=0: otherwise the paraphrase's vector is cached after the first call and every later call
+  # would skip the model; with 0 each semantic hit runs the model once, as a new paraphrase does.
+  start_proxy semantic --Embedding:CacheSize=0
+  local para_body; para_body=$(chat_body "$paraphrase")
+  expect_cache "$json_body" miss
+  expect_cache "$para_body" hit-semantic
+  measure semantic-hit     "http://127.0.0.1:$proxy_port/lane/draft/v1/chat/completions" "$para_body"
+  stop_proxy
+
+  echo
+  echo "| run | req/s | p50 ms | p90 ms | p99 ms |"
+  echo "| --- | ---: | ---: | ---: | ---: |"
+  for r in "${rows[@]}"; do echo "| $r | ${rps[$r]} | ${p50[$r]} | ${p90[$r]} | ${p99[$r]} |"; done
+  echo
+  echo "| ratio | JSON | SSE | target |"
+  echo "| --- | ---: | ---: | --- |"
+  echo "| proxy / direct (req/s) | $(ratio "${rps[proxy-json]}" "${rps[direct-json]}") | $(ratio "${rps[proxy-sse]}" "${rps[direct-sse]}") | |"
+  echo "| proxy / nginx (req/s) | $(ratio "${rps[proxy-json]}" "${rps[nginx-json]}") | $(ratio "${rps[proxy-sse]}" "${rps[nginx-sse]}") | ≥ 1.00: $(verdict "$(ratio "${rps[proxy-json]}" "${rps[nginx-json]}")" '>=' 1) (JSON) |"
+  echo "| proxy p50 − direct p50 (ms) | $(minus "${p50[proxy-json]}" "${p50[direct-json]}") | $(minus "${p50[proxy-sse]}" "${p50[direct-sse]}") | ≤ 0.5: $(verdict "$(minus "${p50[proxy-json]}" "${p50[direct-json]}")" '<=' 0.5) (JSON) |"
+  echo "| nginx p50 − direct p50 (ms) | $(minus "${p50[nginx-json]}" "${p50[direct-json]}") | $(minus "${p50[nginx-sse]}" "${p50[direct-sse]}") | |"
+  echo "| proxy without request log / with (req/s) | $(ratio "${rps[proxy-json-nolog]}" "${rps[proxy-json]}") | | |"
+  echo "| proxy / bare Kestrel+YARP (req/s) | $(ratio "${rps[proxy-json]}" "${rps[bare-yarp-json]}") | | |"
+  echo "| bare Kestrel+YARP / nginx (req/s) | $(ratio "${rps[bare-yarp-json]}" "${rps[nginx-json]}") | | |"
+  echo "| exact hit / passthrough (req/s) | $(ratio "${rps[exact-hit]}" "${rps[proxy-json]}") | | |"
+  echo "| semantic hit / exact hit (req/s) | $(ratio "${rps[semantic-hit]}" "${rps[exact-hit]}") | | |"
+}
+
+# ---- soak ----------------------------------------------------------------------------------------------------------
+rss_kb() { awk '/^VmRSS:/{print $2}' "/proc/$1/status"; }
+
+run_soak() {
+  local minutes=$1 warmup_s=${BENCH_WARMUP_S:-120} every=${BENCH_SAMPLE_S:-10} max_growth=${BENCH_MAX_RSS_GROWTH:-5}
+  local seconds=$((minutes * 60))
+  if [ "$seconds" -le $((warmup_s + 3 * every)) ]; then echo "bench.sh: soak needs more than warm-up + 3 samples" >&2; exit 2; fi
+  machine
+  start_upstream
+  # Bounded structures are made small so that they fill during the warm-up and what follows is the steady state:
+  # 500 entries (misses then evict the least recently hit) and 256 cached vectors (default 4096 would still be
+  # filling at 10 minutes at this miss rate).
+  start_proxy soak --Store:MaxEntries=500 --Embedding:CacheSize=256
+  local hit_body stream_hit_body para_body
+  hit_body=$(chat_body "$question"); stream_hit_body=$(chat_body "$question" true); para_body=$(chat_body "$paraphrase")
+  expect_cache "$hit_body" miss
+  expect_cache "$para_body" hit-semantic
+  local delay=${BENCH_DELAY_MS:-100} conns=${BENCH_SOAK_CONNECTIONS:-4}
+  echo "soak: ${minutes} min (warm-up ${warmup_s} s, VmRSS every ${every} s), pinning $([ ${#on_sut[@]} -gt 0 ] && echo 'proxy on core 0, wrk + upstream on core 1' || echo off), ${conns} connections each waiting ${delay} ms between requests; mix per 6 calls: exact hit, miss, passthrough JSON, streamed hit, passthrough SSE, semantic hit"
+  local before; before=$(loadavg)
+  BENCH_DELAY_MS=$delay BENCH_LANE_PATH=/lane/draft/v1/chat/completions \
+  BENCH_HIT_BODY=$hit_body BENCH_STREAM_HIT_BODY=$stream_hit_body BENCH_PARAPHRASE_BODY=$para_body \
+  BENCH_PASSTHROUGH_BODY=$hit_body \
+  BENCH_MISS_TEMPLATE=$(chat_body "How long can I keep a shared bike from dock %d before the overtime fee starts?") \
+    "${on_harness[@]}" wrk -t2 -c"$conns" -d"${seconds}s" --latency -s scripts/bench/soak.lua "http://127.0.0.1:$proxy_port" \
+    > "$work/wrk-soak.txt" &
+  local wrk_pid=$!; pids+=($wrk_pid)
+  local t=0 samples=() times=()
+  while kill -0 "$wrk_pid" 2>/dev/null && [ $t -lt $seconds ]; do
+    sleep "$every"; t=$((t + every))
+    kill -0 "$proxy_pid" 2>/dev/null || { echo "bench.sh: the proxy died; see $work/soak/proxy.log" >&2; BENCH_KEEP=1; exit 1; }
+    local kb; kb=$(rss_kb "$proxy_pid"); samples+=("$kb"); times+=("$t")
+    printf '  t=%4ss  VmRSS %7.1f MiB\n' "$t" "$(awk -v k="$kb" 'BEGIN{print k/1024}')"
+  done
+  wait "$wrk_pid" || true
+  local after; after=$(loadavg)
+  local entries; entries=$(curl -sS "http://127.0.0.1:$proxy_port/metrics" | awk '/^rewriteproxy_entries/{print $0}' | head -3)
+  echo "load $before -> $after"
+  sed -n '/Latency Distribution/,$p' "$work/wrk-soak.txt"
+  [ -n "$entries" ] && echo "$entries"
+  # Growth: the mean of the last 3 samples against the mean of the first 3 after the warm-up (one sample is one GC's luck).
+  local post=()
+  for i in "${!times[@]}"; do [ "${times[$i]}" -gt "$warmup_s" ] && post+=("${samples[$i]}"); done
+  if [ ${#post[@]} -lt 3 ]; then echo "bench.sh: too few samples after warm-up" >&2; exit 1; fi
+  local n=${#post[@]}
+  local base=$(( (post[0] + post[1] + post[2]) / 3 )) last=$(( (post[n-1] + post[n-2] + post[n-3]) / 3 ))
+  local growth; growth=$(awk -v a="$last" -v b="$base" 'BEGIN{printf "%.2f", (a-b)*100/b}')
+  echo "VmRSS after warm-up: $((base / 1024)) MiB -> $((last / 1024)) MiB = ${growth} % (limit ${max_growth} %)"
+  if grep -q -E 'Socket errors|Non-2xx' "$work/wrk-soak.txt"; then
+    echo "bench.sh: soak had failed calls:" >&2; grep -E 'Socket errors|Non-2xx' "$work/wrk-soak.txt" >&2; exit 1
+  fi
+  awk -v g="$growth" -v m="$max_growth" 'BEGIN{ exit !(g <= m) }' || { echo "bench.sh: VmRSS grew ${growth} % > ${max_growth} %" >&2; exit 1; }
+  echo "soak: ok"
+}
+
+# One line, parsed whole before it runs: editing this file during a run cannot change what the run does next.
+case "$mode" in run) run_throughput ;; soak) run_soak "$soak_minutes" ;; *) echo "usage: scripts/bench.sh [run | soak [minutes]]" >&2; exit 2 ;; esac; exit $?

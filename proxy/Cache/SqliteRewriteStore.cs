@@ -118,7 +118,9 @@ public sealed class SqliteRewriteStore : IRewriteStore
     {
         var c = new SqliteConnection(create ? _connectionString : _readConnectionString);
         c.Open();
-        c.Execute("PRAGMA synchronous=NORMAL; PRAGMA busy_timeout=2000;");
+        // Writes only: synchronous=NORMAL is crash-safe in WAL mode (only a power loss can undo the last commits).
+        // Reads skip the round trip; Microsoft.Data.Sqlite retries a busy read until DefaultTimeout.
+        if (create) c.Execute("PRAGMA synchronous=NORMAL; PRAGMA busy_timeout=2000;");
         return c;
     }
 
@@ -208,9 +210,17 @@ public sealed class SqliteRewriteStore : IRewriteStore
         if (!_queue.Writer.TryWrite(new WriteOp.Hit(id, at.ToUnixTimeMilliseconds()))) Interlocked.Increment(ref DroppedWrites);
     }
 
+    /// <summary>
+    /// Tallies add up in memory and are written once per batch: a hit then costs one queued write (its hit count),
+    /// not three. A crash loses at most the last batch's tallies, which are statistics, never entries.
+    /// </summary>
+    readonly System.Collections.Concurrent.ConcurrentDictionary<(string Lane, string Name), long> _tallies = new();
+    int _tallyWake;
+
     public void Count(string lane, string name, long by = 1)
     {
-        if (!_queue.Writer.TryWrite(new WriteOp.Tally(lane, name, by))) Interlocked.Increment(ref DroppedWrites);
+        _tallies.AddOrUpdate((lane, name), by, (_, v) => v + by);
+        if (Interlocked.Exchange(ref _tallyWake, 1) == 0) _queue.Writer.TryWrite(WriteOp.Wake.Instance);
     }
 
     public void AppendEvent(EventRow row)
@@ -313,12 +323,7 @@ public sealed class SqliteRewriteStore : IRewriteStore
                         c.Execute("UPDATE entries SET hit_count = hit_count + 1, last_hit = MAX(last_hit, @at) WHERE id = @id",
                             new { id = hit.Id, at = hit.At }, tx);
                         break;
-                    case WriteOp.Tally tally:
-                        c.Execute("""
-                            INSERT INTO tallies (lane, name, value) VALUES (@Lane, @Name, @By)
-                            ON CONFLICT (lane, name) DO UPDATE SET value = value + excluded.value
-                            """, new { tally.Lane, tally.Name, tally.By }, tx);
-                        break;
+
                     case WriteOp.Event ev:
                         InsertEvent(c, tx, ev.Row);
                         _eventCount++;
@@ -329,6 +334,7 @@ public sealed class SqliteRewriteStore : IRewriteStore
                         break;
                 }
             }
+            WriteTallies(c, tx);
             removed.AddRange(EvictOverflow(c, tx));
             if (_eventCount > _events.MaxRows)
             {
@@ -349,6 +355,19 @@ public sealed class SqliteRewriteStore : IRewriteStore
         }
         foreach (var op in batch) op.Complete();
         if (removed.Count > 0) Removed?.Invoke(removed);
+    }
+
+    void WriteTallies(SqliteConnection c, SqliteTransaction tx)
+    {
+        Volatile.Write(ref _tallyWake, 0);
+        foreach (var key in _tallies.Keys)
+        {
+            if (!_tallies.TryRemove(key, out var by) || by == 0) continue;
+            c.Execute("""
+                INSERT INTO tallies (lane, name, value) VALUES (@Lane, @Name, @by)
+                ON CONFLICT (lane, name) DO UPDATE SET value = value + excluded.value
+                """, new { key.Lane, key.Name, by }, tx);
+        }
     }
 
     long InsertEntry(SqliteConnection c, SqliteTransaction tx, NewEntry e)
@@ -540,11 +559,10 @@ public sealed class SqliteRewriteStore : IRewriteStore
             public long At { get; } = at;
         }
 
-        public sealed class Tally(string lane, string name, long by) : WriteOp
+        /// <summary>Nothing to do but wake the writer (pending tallies).</summary>
+        public sealed class Wake : WriteOp
         {
-            public string Lane { get; } = lane;
-            public string Name { get; } = name;
-            public long By { get; } = by;
+            public static readonly Wake Instance = new();
         }
 
         public sealed class Event(EventRow row) : WriteOp

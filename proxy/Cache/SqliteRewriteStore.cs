@@ -205,9 +205,14 @@ public sealed class SqliteRewriteStore : IRewriteStore
         return await op.Result.Task.WaitAsync(cancel);
     }
 
+    /// <summary>Hit counts add up in memory like the tallies and are written once per batch (see <see cref="Count"/>).</summary>
+    readonly System.Collections.Concurrent.ConcurrentDictionary<long, (long Count, long Last)> _hits = new();
+
     public void RecordHit(long id, DateTimeOffset at)
     {
-        if (!_queue.Writer.TryWrite(new WriteOp.Hit(id, at.ToUnixTimeMilliseconds()))) Interlocked.Increment(ref DroppedWrites);
+        var ms = at.ToUnixTimeMilliseconds();
+        _hits.AddOrUpdate(id, (1, ms), (_, v) => (v.Count + 1, Math.Max(v.Last, ms)));
+        WakeForPending();
     }
 
     /// <summary>
@@ -215,12 +220,17 @@ public sealed class SqliteRewriteStore : IRewriteStore
     /// not three. A crash loses at most the last batch's tallies, which are statistics, never entries.
     /// </summary>
     readonly System.Collections.Concurrent.ConcurrentDictionary<(string Lane, string Name), long> _tallies = new();
-    int _tallyWake;
+    int _pendingWake;
 
     public void Count(string lane, string name, long by = 1)
     {
         _tallies.AddOrUpdate((lane, name), by, (_, v) => v + by);
-        if (Interlocked.Exchange(ref _tallyWake, 1) == 0) _queue.Writer.TryWrite(WriteOp.Wake.Instance);
+        WakeForPending();
+    }
+
+    void WakeForPending()
+    {
+        if (Interlocked.Exchange(ref _pendingWake, 1) == 0) _queue.Writer.TryWrite(WriteOp.Wake.Instance);
     }
 
     public void AppendEvent(EventRow row)
@@ -319,10 +329,6 @@ public sealed class SqliteRewriteStore : IRewriteStore
                     case WriteOp.Insert insert:
                         insert.Id = InsertEntry(c, tx, insert.Entry);
                         break;
-                    case WriteOp.Hit hit:
-                        c.Execute("UPDATE entries SET hit_count = hit_count + 1, last_hit = MAX(last_hit, @at) WHERE id = @id",
-                            new { id = hit.Id, at = hit.At }, tx);
-                        break;
 
                     case WriteOp.Event ev:
                         InsertEvent(c, tx, ev.Row);
@@ -334,7 +340,7 @@ public sealed class SqliteRewriteStore : IRewriteStore
                         break;
                 }
             }
-            WriteTallies(c, tx);
+            WritePending(c, tx);
             removed.AddRange(EvictOverflow(c, tx));
             if (_eventCount > _events.MaxRows)
             {
@@ -357,9 +363,15 @@ public sealed class SqliteRewriteStore : IRewriteStore
         if (removed.Count > 0) Removed?.Invoke(removed);
     }
 
-    void WriteTallies(SqliteConnection c, SqliteTransaction tx)
+    void WritePending(SqliteConnection c, SqliteTransaction tx)
     {
-        Volatile.Write(ref _tallyWake, 0);
+        Volatile.Write(ref _pendingWake, 0);
+        foreach (var id in _hits.Keys)
+        {
+            if (!_hits.TryRemove(id, out var hit)) continue;
+            c.Execute("UPDATE entries SET hit_count = hit_count + @Count, last_hit = MAX(last_hit, @Last) WHERE id = @id",
+                new { id, hit.Count, hit.Last }, tx);
+        }
         foreach (var key in _tallies.Keys)
         {
             if (!_tallies.TryRemove(key, out var by) || by == 0) continue;
@@ -553,11 +565,6 @@ public sealed class SqliteRewriteStore : IRewriteStore
             public override void Fail(Exception e) => Result.TrySetException(e);
         }
 
-        public sealed class Hit(long id, long at) : WriteOp
-        {
-            public long Id { get; } = id;
-            public long At { get; } = at;
-        }
 
         /// <summary>Nothing to do but wake the writer (pending tallies).</summary>
         public sealed class Wake : WriteOp

@@ -284,6 +284,16 @@ public sealed class SqliteRewriteStore : IRewriteStore
 
     public long EntryCount => Interlocked.Read(ref _entryCount);
 
+    /// <summary>
+    /// Closes this store's idle pooled connections (both connection strings). Only this store's pools: clearing every
+    /// pool of the process would pull connections from under other stores (tests run many at once).
+    /// </summary>
+    public void ReleaseConnections()
+    {
+        using (var c = new SqliteConnection(_connectionString)) SqliteConnection.ClearPool(c);
+        using (var c = new SqliteConnection(_readConnectionString)) SqliteConnection.ClearPool(c);
+    }
+
     async Task WriteLoopAsync()
     {
         var reader = _queue.Reader;
@@ -467,7 +477,7 @@ public sealed class SqliteRewriteStore : IRewriteStore
             return;
         }
         _lastRecovery = DateTimeOffset.UtcNow;
-        SqliteConnection.ClearAllPools();
+        ReleaseConnections();
         try
         {
             if (what == Recovery.Corrupt)
@@ -548,7 +558,7 @@ public sealed class SqliteRewriteStore : IRewriteStore
                 _log.LogWarning("store: gave up waiting for queued writes on shutdown");
             }
         }
-        SqliteConnection.ClearAllPools();
+        ReleaseConnections();
     }
 
     abstract class WriteOp

@@ -94,7 +94,7 @@ public static class DemoRunner
         {
             if (!settings.Keep)
             {
-                SqliteConnection.ClearAllPools();
+                // The proxy's store closed its own connections when the app was disposed.
                 try
                 {
                     Directory.Delete(folder, recursive: true);

@@ -23,7 +23,6 @@ public sealed class TmpfsMount : IDisposable
 
     public void Dispose()
     {
-        Microsoft.Data.Sqlite.SqliteConnection.ClearAllPools();
         FileFaults.Run("umount", "-l", Path);
         try { Directory.Delete(Path); } catch (IOException) { } catch (UnauthorizedAccessException) { }
     }

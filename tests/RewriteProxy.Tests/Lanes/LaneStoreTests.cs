@@ -106,7 +106,7 @@ public sealed class LaneStoreTests : IAsyncLifetime
         await FlushAsync(proxy);
         var recreated = new TaskCompletionSource(TaskCreationOptions.RunContinuationsAsynchronously);
         proxy.Services.GetRequiredService<IRewriteStore>().Reset += () => recreated.TrySetResult();
-        Microsoft.Data.Sqlite.SqliteConnection.ClearAllPools();
+        ((SqliteRewriteStore)proxy.Services.GetRequiredService<IRewriteStore>()).ReleaseConnections();
         // Overwrite the SQLite header ("SQLite format 3\0", sqlite.org/fileformat.html §1.3) and the first pages.
         await using (var file = new FileStream(path, FileMode.Open, FileAccess.Write, FileShare.ReadWrite))
             file.Write(new byte[8192].Select((_, i) => (byte)(i * 7)).ToArray());

@@ -237,7 +237,7 @@ public sealed class MetricsExpositionTests(MetricsWorkloadFixture run, ITestOutp
     /// main port keeps serving lanes and passthrough, and answers /metrics with 404 (the route requires the metrics
     /// port's host). Today ProxyApp's ConfigureKestrel calls ListenLocalhost(port), and any Listen* call makes Kestrel
     /// ignore UseUrls ("Overriding address(es) 'http://127.0.0.1:0'"): the main port is never bound and the metrics
-    /// port serves everything. See notes/metrics.md.
+    /// port serves everything. See DEVELOPERS.md ("Metrics and Prometheus").
     /// </summary>
     [Fact]
     public async Task Main_port_keeps_serving_lanes_but_not_metrics_when_a_metrics_port_is_set()

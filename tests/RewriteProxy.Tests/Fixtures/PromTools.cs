@@ -312,24 +312,7 @@ public sealed class PrometheusServer : IAsyncDisposable
     public async ValueTask DisposeAsync()
     {
         _http.Dispose();
-        try
-        {
-            if (!_process.HasExited)
-            {
-                // The Process object holds the PID this fixture started; nothing else is touched.
-                _process.Kill();
-                using var wait = new CancellationTokenSource(TimeSpan.FromSeconds(10));
-                await _process.WaitForExitAsync(wait.Token);
-            }
-        }
-        catch (InvalidOperationException)
-        {
-            // exited between the check and the kill
-        }
-        finally
-        {
-            _process.Dispose();
-        }
+        await ChildProcess.StopAsync(_process);
         try
         {
             Directory.Delete(_directory, recursive: true);

@@ -144,23 +144,7 @@ public sealed class ProxyProcess : IAsyncDisposable
     public async ValueTask DisposeAsync()
     {
         Client.Dispose();
-        try
-        {
-            if (!_process.HasExited)
-            {
-                _process.Kill();
-                using var wait = new CancellationTokenSource(TimeSpan.FromSeconds(10));
-                await _process.WaitForExitAsync(wait.Token);
-            }
-        }
-        catch (InvalidOperationException)
-        {
-            // exited between the check and the kill
-        }
-        finally
-        {
-            _process.Dispose();
-        }
+        await ChildProcess.StopAsync(_process);
         try { Directory.Delete(_workingDirectory, recursive: true); } catch (IOException) { }
     }
 

@@ -10,6 +10,8 @@ using Microsoft.Extensions.Logging;
 using RewriteProxy.Cache;
 using RewriteProxy.Hosting;
 
+using RewriteProxy.Wire;
+
 namespace RewriteProxy.Cli.Demo;
 
 /// <summary>
@@ -114,25 +116,9 @@ public sealed class DemoUpstream : IAsyncDisposable
         var promptTokens = ((system?.Length ?? 0) + question.Length) / CharsPerToken + ChatOverheadTokens;
         var completionTokens = Math.Max(1, content.Length / CharsPerToken);
         var model = request?["model"]?.GetValue<string>() ?? "scripted-model";
-        await context.Response.WriteAsJsonAsync(new JsonObject
-        {
-            ["id"] = "chatcmpl-demo" + random.Next().ToString("x8"),
-            ["object"] = "chat.completion",
-            ["created"] = DateTimeOffset.UtcNow.ToUnixTimeSeconds(),
-            ["model"] = model,
-            ["choices"] = new JsonArray(new JsonObject
-            {
-                ["index"] = 0,
-                ["message"] = new JsonObject { ["role"] = "assistant", ["content"] = content },
-                ["finish_reason"] = "stop",
-            }),
-            ["usage"] = new JsonObject
-            {
-                ["prompt_tokens"] = promptTokens,
-                ["completion_tokens"] = completionTokens,
-                ["total_tokens"] = promptTokens + completionTokens,
-            },
-        }, context.RequestAborted);
+        // The product's own completion shape, so the stand-in answers exactly as a cache hit would look.
+        await context.Response.WriteAsJsonAsync(CompletionWriter.FromEntry(model, content, promptTokens, completionTokens),
+            context.RequestAborted);
     }
 
     string Draft(string question, string normalized, int attempt, Random random)

@@ -127,8 +127,7 @@ public static class ProxyApp
             // A client whose base URL is a lane's may call other endpoints too; they pass through.
             if (!options.Lanes.ContainsKey(name))
             {
-                await ErrorResponse.WriteAsync(context, 404, $"Unknown lane '{name}'. Configured lanes: " +
-                    string.Join(", ", options.Lanes.Keys.Order(StringComparer.Ordinal)) + ".", "invalid_request_error", "unknown_lane");
+                await LaneHandler.UnknownLaneAsync(context, options, name);
                 return;
             }
             var path = context.Request.Path.Value!;

@@ -52,9 +52,7 @@ public sealed class LaneHandler(
     {
         if (!options.Lanes.TryGetValue(laneName, out var lane))
         {
-            var names = options.Lanes.Count == 0 ? "none" : string.Join(", ", options.Lanes.Keys.Order(StringComparer.Ordinal));
-            await ErrorResponse.WriteAsync(context, 404, $"Unknown lane '{laneName}'. Configured lanes: {names}.",
-                "invalid_request_error", "unknown_lane");
+            await UnknownLaneAsync(context, options, laneName);
             return;
         }
 
@@ -85,6 +83,7 @@ public sealed class LaneHandler(
         var scope = ScopeKey.Compute(lane, request, site, partition);
         var normalized = QuestionText.Normalize(site.Question);
 
+        float[]? questionVector = null;
         if (!directives.NoCache && !directives.NoStore)
         {
             LookupResult found;
@@ -103,9 +102,11 @@ public sealed class LaneHandler(
                 await WriteHitAsync(context, lane, request, found);
                 return;
             }
+            questionVector = found.QuestionVector;
         }
 
-        var miss = new Miss(lane, request, site, scope, normalized, partition, context.Request.Headers, Store: !directives.NoStore);
+        var miss = new Miss(lane, request, site, scope, normalized, partition, context.Request.Headers, Store: !directives.NoStore,
+            questionVector);
         MissOutcome outcome;
         var joined = false;
         try
@@ -130,6 +131,14 @@ public sealed class LaneHandler(
         tally.Lookup(lane.Name, result);
         context.Response.Headers[Header.Cache] = result;
         await WriteOutcomeAsync(context, request, outcome);
+    }
+
+    /// <summary>404 for a lane name that is not configured, naming the ones that are.</summary>
+    public static Task UnknownLaneAsync(HttpContext context, RewriteProxyOptions options, string laneName)
+    {
+        var names = options.Lanes.Count == 0 ? "none" : string.Join(", ", options.Lanes.Keys.Order(StringComparer.Ordinal));
+        return ErrorResponse.WriteAsync(context, 404, $"Unknown lane '{laneName}'. Configured lanes: {names}.",
+            "invalid_request_error", "unknown_lane");
     }
 
     /// <summary>Reads the body up to Limits:MaxRequestBytes; writes 413 and returns null above it.</summary>
@@ -215,8 +224,21 @@ public sealed class LaneHandler(
 
     static string Format(double value) => value.ToString("0.0000", CultureInfo.InvariantCulture);
 
+    // QuestionVector: the question's vector when the lookup already embedded it; null when the lookup was skipped.
     sealed record Miss(LaneOptions Lane, ChatRequest Request, QuestionSite Site, string Scope, string Normalized, string Partition,
-        IHeaderDictionary Headers, bool Store);
+        IHeaderDictionary Headers, bool Store, float[]? QuestionVector);
+
+    /// <summary>
+    /// Vectors of the question and of the rewrites, in one model run: the question's own vector is reused when the
+    /// lookup already computed it, so a miss never embeds its question twice.
+    /// </summary>
+    (float[] Question, float[][] Rewrites) EmbedJudged(Miss miss, IReadOnlyList<string> rewrites)
+    {
+        if (miss.QuestionVector is { } question)
+            return (question, rewrites.Count == 0 ? [] : cache.Embed(rewrites));
+        var vectors = cache.Embed([miss.Site.Question, .. rewrites]);
+        return (vectors[0], vectors[1..]);
+    }
 
     async Task<MissOutcome> RunMissAsync(Miss miss)
     {
@@ -265,14 +287,14 @@ public sealed class LaneHandler(
         var lane = miss.Lane;
         var parsed = SiblingParser.Parse(completion.Content, lane.Candidates);
         var candidates = parsed.Count > lane.MaxCandidates ? parsed.Take(lane.MaxCandidates).ToList() : parsed;
-        var vectors = cache.Embed([miss.Site.Question, .. candidates]);
-        var judgement = SiblingGuard.Judge(vectors[0], candidates, vectors[1..], completion.Content, lane);
+        var (question, vectors) = EmbedJudged(miss, candidates);
+        var judgement = SiblingGuard.Judge(question, candidates, vectors, completion.Content, lane);
         Record(miss, judgement.Kept);
         Record(miss, judgement.Dropped);
         var content = judgement.Content;
         var scores = new EntryScores(judgement.MaxKeptDrift, judgement.Dropped.Count, judgement.Kept.Select(k => k.Drift).ToArray());
         // Nothing kept is not worth keeping: the next call may well bring usable siblings.
-        if (miss.Store && content.Length > 0) await StoreAsync(miss, vectors[0], content, scores, completion);
+        if (miss.Store && content.Length > 0) await StoreAsync(miss, question, content, scores, completion);
         var body = judgement.Enforced ? completion.WithContent(content) : completion.Body;
         return new MissOutcome.Answer(body, judgement.MaxKeptDrift, judgement.Dropped.Count, !judgement.Enforced, answer.Headers);
     }
@@ -281,15 +303,15 @@ public sealed class LaneHandler(
         int attempt, int droppedBefore)
     {
         var lane = miss.Lane;
-        var vectors = cache.Embed([miss.Site.Question, completion.Content]);
-        var verdict = DraftGuard.Judge(vectors[0], vectors[1], completion.Content, lane);
+        var (question, drafts) = EmbedJudged(miss, [completion.Content]);
+        var verdict = DraftGuard.Judge(question, drafts[0], completion.Content, lane);
         Record(miss, [verdict]);
         var dropped = droppedBefore + (verdict.Accepted ? 0 : 1);
         switch (DraftGuard.Decide(verdict, attempt, lane))
         {
             case DraftDecision.Accept:
                 var scores = new EntryScores(verdict.Drift, dropped, [verdict.Drift]);
-                if (miss.Store) await StoreAsync(miss, vectors[0], completion.Content, scores, completion);
+                if (miss.Store) await StoreAsync(miss, question, completion.Content, scores, completion);
                 return (new MissOutcome.Answer(completion.Body, verdict.Accepted ? verdict.Drift : null, dropped,
                     lane.Mode == GuardMode.Observe, answer.Headers), false);
             case DraftDecision.Retry:

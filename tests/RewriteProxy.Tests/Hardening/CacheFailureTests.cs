@@ -101,8 +101,9 @@ public sealed class CacheFailureTests : IAsyncLifetime
         Assert.Equal("A draft answer: " + question, lookup2.Content);
         Assert.True(afterLookup - before >= 2, $"fail-open count rose by {afterLookup - before}");
 
-        // Lookups embed one text; the guard embeds the question with the rewrite. Failing only the latter hits the miss path.
-        embedder.Fail = FaultyEmbedder.Mode.Batches;
+        // Lookups embed the question; the guard embeds the rewrite. Failing only the latter hits the miss path.
+        embedder.Question = question;
+        embedder.Fail = FaultyEmbedder.Mode.Rewrites;
         var guard1 = await proxy.AskAsync("draft", question);
         var guard2 = await proxy.AskAsync("draft", question);
         var afterGuard = await Wire.CounterAsync(proxy.Client, FailOpen, "reason=\"embedder\"");
@@ -122,8 +123,9 @@ public sealed class CacheFailureTests : IAsyncLifetime
     /// <summary>The real model, made to throw on demand the way a broken ONNX session does.</summary>
     sealed class FaultyEmbedder(IEmbedder inner) : IEmbedder
     {
-        public enum Mode { Never, Always, Batches }
+        public enum Mode { Never, Always, Rewrites }
         public volatile Mode Fail;
+        public string Question = "";
 
         public string ModelId => inner.ModelId;
         public int Dimension => inner.Dimension;
@@ -131,7 +133,7 @@ public sealed class CacheFailureTests : IAsyncLifetime
 
         public float[][] Embed(IReadOnlyList<string> texts)
         {
-            if (Fail == Mode.Always || (Fail == Mode.Batches && texts.Count > 1))
+            if (Fail == Mode.Always || (Fail == Mode.Rewrites && texts.Any(t => t != Question)))
                 throw new InvalidOperationException("the embedding session broke");
             return inner.Embed(texts);
         }

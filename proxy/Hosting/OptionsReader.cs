@@ -50,7 +50,11 @@ public static class OptionsReader
 
         var options = new
         {
-            Partition = r.Choice("Partition", PartitionMode.Credential),
+            Partition = new PartitionOptions
+            {
+                Mode = r.Choice("Partition", PartitionMode.Credential),
+                Headers = r.HeaderNames("PartitionHeaders"),
+            },
             Limits = new LimitsOptions
             {
                 MaxRequestBytes = r.Long("Limits:MaxRequestBytes", 1 << 20, min: 1024),
@@ -159,6 +163,29 @@ public static class OptionsReader
                 return null;
             }
             return uri;
+        }
+
+        /// <summary>
+        /// A list of HTTP header names: a JSON array (<c>Key:0</c>, <c>Key:1</c>, ...) or one comma-separated value,
+        /// which is what an environment variable can hold.
+        /// </summary>
+        public IReadOnlyList<string> HeaderNames(string key)
+        {
+            var section = config.GetSection(key);
+            var values = section.GetChildren().Any()
+                ? section.GetChildren().Select(c => c.Value).ToList()
+                : [.. (section.Value ?? "").Split(',')];
+            var names = new List<string>();
+            foreach (var raw in values)
+            {
+                var name = raw?.Trim() ?? "";
+                if (name.Length == 0) continue;
+                // RFC 9110 §5.1: a field name is a token.
+                if (!Regex.IsMatch(name, @"^[!#$%&'*+\-.^_`|~0-9A-Za-z]+$"))
+                    Error($"{key}: '{name}' is not an HTTP header name; use letters, digits and -");
+                else names.Add(name);
+            }
+            return names;
         }
 
         public double Unit(string key, double fallback) => Double(key, fallback, 0, 1);

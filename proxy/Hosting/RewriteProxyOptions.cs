@@ -8,8 +8,8 @@ public sealed record RewriteProxyOptions
     public required EmbeddingOptions Embedding { get; init; }
     /// <summary>Rewrite lanes by name (names compare case-insensitively).</summary>
     public required IReadOnlyDictionary<string, LaneOptions> Lanes { get; init; }
-    /// <summary>Tenant boundary for cache entries. Default <see cref="PartitionMode.Credential"/>.</summary>
-    public PartitionMode Partition { get; init; } = PartitionMode.Credential;
+    /// <summary>Tenant boundary for cache entries (<c>Partition</c>, <c>PartitionHeaders</c>).</summary>
+    public PartitionOptions Partition { get; init; } = new();
     public required LimitsOptions Limits { get; init; }
     public required AdminOptions Admin { get; init; }
     public required EventsOptions Events { get; init; }
@@ -18,10 +18,31 @@ public sealed record RewriteProxyOptions
 
 public enum PartitionMode
 {
-    /// <summary>SHA-256 of the client's Authorization header: tenants never share entries.</summary>
+    /// <summary>SHA-256 of every credential header the client sends: tenants never share entries.</summary>
     Credential,
     /// <summary>One partition for every caller: only for a single-tenant deployment.</summary>
     Shared,
+}
+
+public sealed record PartitionOptions
+{
+    /// <summary>
+    /// Headers that carry a credential in the providers' own schemes: OpenAI's <c>Authorization</c>, Azure OpenAI's
+    /// <c>api-key</c>, Anthropic's (and several OpenAI-compatible hosts') <c>x-api-key</c>. Always part of the partition.
+    /// </summary>
+    public static readonly IReadOnlyList<string> DefaultCredentialHeaders = ["Authorization", "api-key", "x-api-key"];
+
+    /// <summary><c>Partition</c>: <c>credential</c> (default) or <c>shared</c>.</summary>
+    public PartitionMode Mode { get; init; } = PartitionMode.Credential;
+
+    /// <summary>The built-in credential headers (<see cref="DefaultCredentialHeaders"/>).</summary>
+    public IReadOnlyList<string> CredentialHeaders { get; init; } = DefaultCredentialHeaders;
+
+    /// <summary>
+    /// <c>PartitionHeaders</c>: further headers that tell tenants apart (a gateway's tenant id, a custom key header).
+    /// Default none.
+    /// </summary>
+    public IReadOnlyList<string> Headers { get; init; } = [];
 }
 
 /// <summary>The LLM provider that every call goes to.</summary>

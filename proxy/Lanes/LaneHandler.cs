@@ -79,7 +79,7 @@ public sealed class LaneHandler(
             return;
         }
 
-        var partition = ScopeKey.Partition(options.Partition, context.Request.Headers.Authorization);
+        var partition = PartitionKey.Of(options.Partition, context.Request.Headers);
         var scope = ScopeKey.Compute(lane, request, site, partition);
         var normalized = QuestionText.Normalize(site.Question);
 

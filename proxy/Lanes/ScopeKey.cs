@@ -44,11 +44,6 @@ public static class ScopeKey
         return Convert.ToHexStringLower(SHA256.HashData(Encoding.UTF8.GetBytes(canonical.ToString())));
     }
 
-    /// <summary>The partition of a caller: SHA-256 of its Authorization header, or "shared".</summary>
-    public static string Partition(PartitionMode mode, string? authorization) => mode == PartitionMode.Shared
-        ? "shared"
-        : Convert.ToHexStringLower(SHA256.HashData(Encoding.UTF8.GetBytes("rewriteproxy-partition\n" + (authorization ?? ""))));
-
     /// <summary>JSON with object keys sorted, so equal content gives equal text.</summary>
     static string Canonical(JsonNode? node)
     {

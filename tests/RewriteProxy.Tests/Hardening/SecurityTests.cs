@@ -114,6 +114,7 @@ public sealed class SecurityTests : IAsyncLifetime
     public async Task Credentials_never_reach_the_store_the_wal_the_event_log_or_the_console_log()
     {
         var credential = "sk-canary-" + Guid.NewGuid().ToString("N");
+        var keyCredential = "key-canary-" + Guid.NewGuid().ToString("N");
         const string adminToken = "admin-canary-0123456789abcdef0123";
         var storePath = TestProxy.NewStorePath();
         // Debug level: more is logged than the shipped Information level, so more places a credential could leak.
@@ -128,6 +129,17 @@ public sealed class SecurityTests : IAsyncLifetime
         await client.AskAsync("draft", "How do I reset the PIN of my library card?", credential);
         await client.AskAsync("draft", "How can I reset my library card PIN?", credential);
         await client.AskAsync("siblings", "Where is the lost property office?", credential, stream: true);
+        // The other credential schemes: Azure OpenAI's api-key and Anthropic's x-api-key.
+        foreach (var header in new[] { "api-key", "x-api-key" })
+        {
+            using var request = new HttpRequestMessage(HttpMethod.Post, "/lane/draft/v1/chat/completions")
+            {
+                Content = new StringContent(LaneCalls.Request("Where can I charge an electric scooter?").ToJsonString(), Encoding.UTF8,
+                    "application/json"),
+            };
+            request.Headers.TryAddWithoutValidation(header, keyCredential);
+            (await client.SendAsync(request)).Dispose();
+        }
         var bypass = LaneCalls.Request("What is on this photo?");
         bypass["tools"] = new JsonArray(new JsonObject { ["type"] = "function", ["function"] = new JsonObject { ["name"] = "look" } });
         await client.PostLaneAsync("draft", bypass, credential);
@@ -152,14 +164,14 @@ public sealed class SecurityTests : IAsyncLifetime
             (await client.SendAsync(request)).Dispose();
         }
         // Stop by SIGKILL with the WAL still in place: the -wal file is read as it was left.
-        Assert.True(_upstream.ChatCalls >= 3);
+        Assert.True(_upstream.ChatCalls >= 5);
         await Task.Delay(1500); // let the background writer commit events and hit counts
         proxy.Kill();
 
         var dir = Path.GetDirectoryName(storePath)!;
         var files = Directory.GetFiles(dir);
         Assert.Contains(files, f => f.EndsWith("-wal", StringComparison.Ordinal));
-        foreach (var secret in new[] { credential, adminToken })
+        foreach (var secret in new[] { credential, keyCredential, adminToken })
         {
             var utf8 = Encoding.UTF8.GetBytes(secret);
             foreach (var file in files)

@@ -107,6 +107,27 @@ public sealed class ConfigurationTests
         Assert.Contains(options.Lanes.Values, l => l.Kind == LaneKind.Siblings);
     }
 
+    [Fact]
+    public void Partition_headers_read_from_an_array_or_one_comma_separated_value_and_a_bad_name_is_named()
+    {
+        static (RewriteProxyOptions? Options, IReadOnlyList<string> Errors) Read(Dictionary<string, string?> values)
+        {
+            values["Upstream:BaseUrl"] = "http://127.0.0.1:9/v1";
+            return OptionsReader.Read(new ConfigurationBuilder().AddInMemoryCollection(values).Build());
+        }
+
+        var array = Read(new() { ["PartitionHeaders:0"] = "X-Tenant-Id", ["PartitionHeaders:1"] = "X-Org" });
+        var commas = Read(new() { ["PartitionHeaders"] = "X-Tenant-Id, X-Org" });
+        var none = Read(new());
+        var bad = Read(new() { ["PartitionHeaders:0"] = "X Tenant" });
+
+        Assert.Equal(["X-Tenant-Id", "X-Org"], array.Options!.Partition.Headers);
+        Assert.Equal(["X-Tenant-Id", "X-Org"], commas.Options!.Partition.Headers);
+        Assert.Empty(none.Options!.Partition.Headers);
+        Assert.Equal(["Authorization", "api-key", "x-api-key"], none.Options.Partition.CredentialHeaders);
+        Assert.Contains("PartitionHeaders: 'X Tenant' is not an HTTP header name", Assert.Single(bad.Errors));
+    }
+
     [Theory]
     [InlineData("90s", 90)]
     [InlineData("5m", 300)]

@@ -190,7 +190,8 @@ public sealed class MetricsExpositionTests(MetricsWorkloadFixture run, ITestOutp
         var secrets = run.Tally.QuestionsSent.Concat(MetricsWorkloadFixture.FailOpenQuestions)
             .Concat(run.Tally.QuestionsSent.Select(QuestionText.Normalize))
             .Concat(MetricsWorkload.Credentials)
-            .Concat(MetricsWorkload.Credentials.Select(c => ScopeKey.Partition(PartitionMode.Credential, "Bearer " + c)))
+            .Concat(MetricsWorkload.Credentials.Select(c => PartitionKey.Of(new PartitionOptions(),
+                new Microsoft.AspNetCore.Http.HeaderDictionary { ["Authorization"] = "Bearer " + c })))
             .Append(MetricsWorkload.Model);
         foreach (var secret in secrets)
             Assert.False(text.Contains(secret, StringComparison.OrdinalIgnoreCase), $"the scrape contains '{secret}'");

@@ -16,5 +16,14 @@ if [ ${#need[@]} -gt 0 ]; then
   $sudo_cmd apt-get install -y -qq --no-install-recommends $(printf '%s\n' "${need[@]}" | sort -u) >/dev/null
 fi
 
+# Official provider clients and RAG frameworks, run as the proxy's clients (tests/clients/package.json pins them;
+# the `node` package brings the Node.js 22 they need, whatever Node.js the machine has).
+clients=tests/clients
+if [ ! -x "$clients/node_modules/.bin/node" ] || [ "$clients/package-lock.json" -nt "$clients/node_modules/.package-lock.json" ]; then
+  command -v npm >/dev/null 2>&1 || { echo "test.sh: npm is needed for the client tests (apt-get install npm)"; exit 1; }
+  echo "test.sh: installing the client packages of $clients"
+  (cd "$clients" && npm ci --no-audit --no-fund --loglevel=error)
+fi
+
 export DOTNET_CLI_TELEMETRY_OPTOUT=1 DOTNET_NOLOGO=1
 dotnet test RewriteProxy.sln -c Release --logger "console;verbosity=normal" "$@"

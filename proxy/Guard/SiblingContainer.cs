@@ -1,0 +1,318 @@
+using System.Text.Encodings.Web;
+using System.Text.Json;
+using System.Text.Json.Nodes;
+using System.Text.RegularExpressions;
+using RewriteProxy.Hosting;
+
+namespace RewriteProxy.Guard;
+
+/// <summary>The kinds of container a model wraps its sibling lines in: the word shown in events and tests.</summary>
+public static class ContainerKind
+{
+    /// <summary>No container: lines (with or without a preamble, mixed markers). Answered as before, one per line.</summary>
+    public const string Plain = "plain";
+    /// <summary>An XML-style tag pair around the lines (<c>&lt;questions&gt;…&lt;/questions&gt;</c>).</summary>
+    public const string Tags = "tags";
+    /// <summary>Every candidate line numbered the same way (<c>1.</c> or <c>1)</c>).</summary>
+    public const string Numbered = "numbered";
+    /// <summary>Every candidate line carries the same bullet.</summary>
+    public const string Bulleted = "bulleted";
+    /// <summary>Plain lines inside a code fence.</summary>
+    public const string Fence = "fence";
+    /// <summary>A JSON array of strings, or an object holding one.</summary>
+    public const string Json = "json";
+}
+
+/// <summary>
+/// The shape a siblings completion came in, and how to write the kept siblings back in that shape, so that the
+/// client's own output parser reads the proxy's answer exactly as it reads the model's.
+/// </summary>
+/// <remarks>
+/// <para>Lines containers (tags, numbered, bulleted, any of them inside a code fence): the answer is the completion
+/// with every candidate line that was not kept removed, everything else as the model wrote it (preamble, tags,
+/// fence, numbering). Kept lines stay in the completion's order and keep their own markers, so a numbered list may
+/// skip a number: a parser that keeps the numbers (LangChain's LineListOutputParser does) then returns exactly the
+/// direct call's list less the dropped lines.</para>
+/// <para>JSON: the array (or the object's array) is written again with only the kept strings, indented as the
+/// model indented it; other members of an object are kept.</para>
+/// <para>Plain: <see cref="Render"/> returns null and the guard's own content (kept siblings one per line, in
+/// selection order) is the answer, as it always was.</para>
+/// </remarks>
+public sealed class SiblingContainer
+{
+    static readonly TimeSpan RegexBudget = TimeSpan.FromMilliseconds(100);
+    static readonly Regex Fence = new(@"```[^\r\n`]*\r?\n(?<inner>[\s\S]*?)\r?\n?```", RegexOptions.CultureInvariant, RegexBudget);
+    static readonly Regex TagPair = new(@"<(?<tag>[A-Za-z_][\w.-]{0,40})>(?<inner>[\s\S]*?)</\k<tag>>", RegexOptions.CultureInvariant, RegexBudget);
+    static readonly Regex Number = new(@"^\s*\(?\d{1,2}(?<p>[.):])(?!\d)", RegexOptions.CultureInvariant, RegexBudget);
+    static readonly Regex Bullet = new(@"^\s*(?<b>[-*•–—+·▪◦‣])\s", RegexOptions.CultureInvariant, RegexBudget);
+
+    static readonly JsonSerializerOptions Relaxed = new() { Encoder = JavaScriptEncoder.UnsafeRelaxedJsonEscaping };
+
+    readonly string _completion;
+    // Where the container's inner text (lines) or the JSON text sits in the completion.
+    readonly (int Start, int Length)? _span;
+    // Lines containers: every line of the inner text. Both kinds: which line (or JSON item) is which candidate, -1 for none.
+    readonly string[]? _lines;
+    readonly int[]? _candidateOfLine;
+    // JSON: the parsed root and the indent the model used.
+    readonly JsonNode? _jsonRoot;
+    readonly string _jsonIndent = "";
+
+    /// <summary>A <see cref="ContainerKind"/> word.</summary>
+    public string Kind { get; }
+
+    /// <summary>True when the container sits inside a code fence.</summary>
+    public bool Fenced { get; }
+
+    /// <summary>Candidate siblings in completion order, cleaned as <see cref="SiblingParser"/> cleans them.</summary>
+    public IReadOnlyList<string> Candidates { get; }
+
+    SiblingContainer(string completion, string kind, bool fenced, IReadOnlyList<string> candidates)
+    {
+        _completion = completion;
+        Kind = kind;
+        Fenced = fenced;
+        Candidates = candidates;
+    }
+
+    SiblingContainer(string completion, string kind, bool fenced, IReadOnlyList<string> candidates, (int, int) inner, string[] lines,
+        int[] candidateOfLine)
+        : this(completion, kind, fenced, candidates)
+    {
+        _span = inner;
+        _lines = lines;
+        _candidateOfLine = candidateOfLine;
+    }
+
+    SiblingContainer(string completion, bool fenced, IReadOnlyList<string> candidates, (int, int) span, JsonNode root, string indent,
+        int[] candidateOfItem)
+        : this(completion, ContainerKind.Json, fenced, candidates)
+    {
+        _span = span;
+        _jsonRoot = root;
+        _jsonIndent = indent;
+        _candidateOfLine = candidateOfItem;
+    }
+
+    /// <summary>True when <see cref="Render"/> writes the answer (every kind but plain).</summary>
+    public bool Renders => Kind != ContainerKind.Plain;
+
+    /// <summary>Reads the shape of <paramref name="completion"/> and its candidates under <paramref name="rule"/>.</summary>
+    public static SiblingContainer Read(string completion, CandidateRule rule)
+    {
+        try
+        {
+            var fence = Fence.Match(completion);
+            var (start, length) = fence.Success ? (fence.Groups["inner"].Index, fence.Groups["inner"].Length) : (0, completion.Length);
+            return ReadJson(completion, start, length, fence.Success, rule)
+                ?? ReadLines(completion, start, length, fence.Success, rule)
+                ?? Plain(completion, rule);
+        }
+        catch (RegexMatchTimeoutException)
+        {
+            return Plain(completion, rule);
+        }
+    }
+
+    static SiblingContainer Plain(string completion, CandidateRule rule) =>
+        new(completion, ContainerKind.Plain, false, SiblingParser.Parse(completion, rule));
+
+    static SiblingContainer? ReadJson(string completion, int start, int length, bool fenced, CandidateRule rule)
+    {
+        var text = completion.Substring(start, length);
+        var trimmed = text.Trim();
+        if (trimmed.Length < 2 || trimmed[0] is not ('[' or '{')) return null;
+        JsonNode? root;
+        try
+        {
+            root = JsonNode.Parse(trimmed);
+        }
+        catch (JsonException)
+        {
+            return null;
+        }
+        var array = root switch
+        {
+            JsonArray a when IsStrings(a) => a,
+            // An object holding one array of strings ({"queries": [...]}): that array is the list.
+            JsonObject o when o.Select(p => p.Value).OfType<JsonArray>().Where(IsStrings).ToList() is [var only] => only,
+            _ => null,
+        };
+        if (array is null || array.Count == 0) return null;
+        // Every string of the array is a sibling the model offered, so each is judged (the Lines rule), whatever
+        // the lane's rule for free text; an empty string is left where it is.
+        var candidates = new List<string>();
+        var candidateOfItem = new int[array.Count];
+        for (var i = 0; i < array.Count; i++)
+        {
+            var item = array[i]!.GetValue<string>().ReplaceLineEndings(" ");
+            var cleaned = SiblingParser.Parse(item, CandidateRule.Lines).FirstOrDefault() ?? item.Trim();
+            candidateOfItem[i] = cleaned.Length == 0 ? -1 : candidates.Count;
+            if (cleaned.Length > 0) candidates.Add(cleaned);
+        }
+        if (candidates.Count == 0) return null;
+        var offset = start + text.IndexOf(trimmed, StringComparison.Ordinal);
+        var indent = Regex.Match(trimmed, @"\n([ \t]+)\S", RegexOptions.None, RegexBudget) is { Success: true } m ? m.Groups[1].Value : "";
+        // The nested array of an object is indented one level deeper; the indent unit is the outermost one.
+        return new SiblingContainer(completion, fenced, candidates, (offset, trimmed.Length), root!, indent, candidateOfItem);
+    }
+
+    static bool IsStrings(JsonArray a) => a.All(i => i is JsonValue v && v.GetValueKind() == JsonValueKind.String);
+
+    static SiblingContainer? ReadLines(string completion, int start, int length, bool fenced, CandidateRule rule)
+    {
+        // The container's inner text: the fence's, narrowed to a tag pair's when there is one.
+        int from = start, to = start + length;
+        var kind = (string?)null;
+        var tag = TagPair.Match(completion, start, length);
+        if (tag.Success)
+        {
+            (from, to) = (tag.Groups["inner"].Index, tag.Groups["inner"].Index + tag.Groups["inner"].Length);
+            kind = ContainerKind.Tags;
+        }
+
+        var lines = completion[from..to].Split('\n');
+        var candidateOfLine = new int[lines.Length];
+        var candidates = new List<string>();
+        var markers = new List<string>();
+        for (var i = 0; i < lines.Length; i++)
+        {
+            candidateOfLine[i] = -1;
+            var found = SiblingParser.Parse(lines[i].TrimEnd('\r'), rule);
+            if (found.Count == 0) continue;
+            candidateOfLine[i] = candidates.Count;
+            candidates.Add(found[0]);
+            markers.Add(MarkerOf(lines[i]));
+        }
+        if (candidates.Count == 0) return null;
+
+        if (kind is null)
+        {
+            // Without tags, a list is a container only when every candidate carries the same kind of marker.
+            if (markers.All(m => m.StartsWith("number", StringComparison.Ordinal)) && markers.Distinct().Count() == 1) kind = ContainerKind.Numbered;
+            else if (markers.All(m => m.StartsWith("bullet", StringComparison.Ordinal)) && markers.Distinct().Count() == 1) kind = ContainerKind.Bulleted;
+            else if (fenced) kind = ContainerKind.Fence;
+            else return null;
+        }
+        return new SiblingContainer(completion, kind, fenced, candidates, (from, to - from), lines, candidateOfLine);
+    }
+
+    static string MarkerOf(string line)
+    {
+        if (Number.Match(line) is { Success: true } n) return "number" + n.Groups["p"].Value;
+        if (Bullet.Match(line) is { Success: true } b) return "bullet" + b.Groups["b"].Value;
+        return "";
+    }
+
+    /// <summary>
+    /// The answer holding only <paramref name="kept"/> (candidate texts, as the guard returned them) in this
+    /// container; null for a plain completion, whose answer is the guard's own content.
+    /// </summary>
+    public string? Render(IReadOnlyList<string> kept)
+    {
+        var wanted = kept.GroupBy(k => k, StringComparer.Ordinal).ToDictionary(g => g.Key, g => g.Count(), StringComparer.Ordinal);
+        bool Take(string candidate)
+        {
+            if (!wanted.TryGetValue(candidate, out var left) || left == 0) return false;
+            wanted[candidate] = left - 1;
+            return true;
+        }
+
+        if (_jsonRoot is not null)
+        {
+            var root = _jsonRoot!.DeepClone();
+            var array = root is JsonArray a ? a : ((JsonObject)root).Select(p => p.Value).OfType<JsonArray>().First(IsStrings);
+            var keep = new bool[array.Count];
+            for (var i = 0; i < array.Count; i++) keep[i] = _candidateOfLine![i] < 0 || Take(Candidates[_candidateOfLine[i]]);
+            for (var i = array.Count - 1; i >= 0; i--)
+                if (!keep[i]) array.RemoveAt(i);
+            var json = WriteJson(root);
+            var (start, length) = _span!.Value;
+            return _completion[..start] + json + _completion[(start + length)..];
+        }
+        if (_lines is null) return null;
+
+        var lines = new List<string>(_lines.Length);
+        for (var i = 0; i < _lines.Length; i++)
+        {
+            var c = _candidateOfLine![i];
+            if (c < 0 || Take(Candidates[c])) lines.Add(_lines[i]);
+        }
+        var (from, count) = _span!.Value;
+        return _completion[..from] + string.Join('\n', lines) + _completion[(from + count)..];
+    }
+
+    /// <summary>
+    /// The answer holding <paramref name="text"/> alone, in this container: the never-empty fallback. In a list it
+    /// takes the first candidate line's place and marker; plain, it is the text itself.
+    /// </summary>
+    public string RenderOnly(string text)
+    {
+        if (_jsonRoot is not null)
+        {
+            var root = _jsonRoot.DeepClone();
+            var array = root is JsonArray a ? a : ((JsonObject)root).Select(p => p.Value).OfType<JsonArray>().First(IsStrings);
+            array.Clear();
+            array.Add(text);
+            var (start, length) = _span!.Value;
+            return _completion[..start] + WriteJson(root) + _completion[(start + length)..];
+        }
+        if (_lines is null) return text;
+        var lines = new List<string>(_lines.Length);
+        var placed = false;
+        for (var i = 0; i < _lines.Length; i++)
+        {
+            var c = _candidateOfLine![i];
+            if (c < 0) lines.Add(_lines[i]);
+            else if (!placed)
+            {
+                var line = _lines[i].TrimEnd('\r');
+                var at = line.IndexOf(Candidates[c], StringComparison.Ordinal);
+                // Keep the line's marker and quotes around the new text; a line cleaned beyond recognition keeps its marker.
+                lines.Add(at >= 0
+                    ? line[..at] + text + line[(at + Candidates[c].Length)..]
+                    : (MarkerOf(line).Length > 0 ? MarkerText(line) : "") + text);
+                placed = true;
+            }
+        }
+        var (from, count) = _span!.Value;
+        return _completion[..from] + string.Join('\n', lines) + _completion[(from + count)..];
+    }
+
+    static string MarkerText(string line)
+    {
+        var m = Number.Match(line);
+        if (!m.Success) m = Bullet.Match(line);
+        return m.Success ? line[..(m.Index + m.Length)].TrimEnd() + " " : "";
+    }
+
+    string WriteJson(JsonNode root)
+    {
+        if (_jsonIndent.Length == 0)
+        {
+            // One line, as the model wrote it; ", " between items when the model put a space after its commas.
+            var compact = root.ToJsonString(Relaxed);
+            var spaced = Regex.IsMatch(_completion, @"""\s*,[ \t]+""", RegexOptions.None, RegexBudget);
+            return spaced ? JoinSpaced(root) : compact;
+        }
+        var options = new JsonSerializerOptions(Relaxed)
+        {
+            WriteIndented = true,
+            IndentCharacter = _jsonIndent[0],
+            IndentSize = _jsonIndent.Length,
+        };
+        return root.ToJsonString(options);
+    }
+
+    static string JoinSpaced(JsonNode root)
+    {
+        string Array(JsonArray a) => "[" + string.Join(", ", a.Select(i => i!.ToJsonString(Relaxed))) + "]";
+        return root switch
+        {
+            JsonArray a => Array(a),
+            JsonObject o => "{" + string.Join(", ", o.Select(p =>
+                JsonSerializer.Serialize(p.Key, Relaxed) + ": " + (p.Value is JsonArray a ? Array(a) : p.Value?.ToJsonString(Relaxed) ?? "null"))) + "}",
+            _ => root.ToJsonString(Relaxed),
+        };
+    }
+}

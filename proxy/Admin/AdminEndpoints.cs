@@ -111,8 +111,20 @@ public static class AdminEndpoints
             tokensSaved = l.TokensSaved,
             dropsByReason = l.DropsByReason,
             refusalsByReason = l.RefusalsByReason,
+            questionsBySource = l.Questions,
+        }),
+        templates = stats.Templates.Select(t => new
+        {
+            lane = t.Lane,
+            partition = t.PartitionHash,
+            template = t.Prefix + TemplateQuestion + t.Suffix,
+            learnedFrom = t.LearnedFrom,
+            learnedAt = t.LearnedAt,
         }),
     };
+
+    /// <summary>Where the question sits in a learned template, as /admin and <c>rewriteproxy stats</c> show it.</summary>
+    public const string TemplateQuestion = "{question}";
 
     static IResult Error(int status, string message) =>
         Results.Json(new { error = new { message, type = "invalid_request_error", code = "invalid_request" } }, statusCode: status);

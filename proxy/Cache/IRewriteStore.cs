@@ -31,7 +31,13 @@ public interface IRewriteStore : IAsyncDisposable
     /// <summary>Appends to the event log in the background.</summary>
     void AppendEvent(EventRow row);
 
-    /// <summary>Deletes the matching entries; returns their ids.</summary>
+    /// <summary>Learned prompt templates younger than <paramref name="minLearned"/>, to make them known again at start.</summary>
+    IReadOnlyList<TemplateRow> Templates(DateTimeOffset minLearned);
+
+    /// <summary>Keeps a newly learned template (in the background; the same key, prefix and suffix are kept once).</summary>
+    void SaveTemplate(TemplateRow row);
+
+    /// <summary>Deletes the matching entries (and the learned templates of a lane or partition); returns the entries' ids.</summary>
     Task<IReadOnlyList<long>> PurgeAsync(PurgeFilter filter, CancellationToken cancel);
 
     /// <summary>Waits until everything queued so far is written.</summary>

@@ -56,5 +56,20 @@ public static class SqliteMigrations
             PRIMARY KEY (lane, name)
         ) WITHOUT ROWID;
         """,
+        // 4: prompt templates learned from traffic, per learning key (a hash of lane, model, other messages,
+        // parameters and partition); the question is what lies between prefix and suffix
+        """
+        CREATE TABLE templates (
+            learn_key      TEXT    NOT NULL,
+            lane           TEXT    NOT NULL,
+            partition_hash TEXT    NOT NULL,
+            prefix         TEXT    NOT NULL,
+            suffix         TEXT    NOT NULL,
+            learned_from   INTEGER NOT NULL,
+            learned_at     INTEGER NOT NULL,
+            PRIMARY KEY (learn_key, prefix, suffix)
+        );
+        CREATE INDEX templates_learned_at ON templates (learned_at);
+        """,
     ];
 }

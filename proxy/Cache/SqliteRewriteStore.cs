@@ -239,6 +239,19 @@ public sealed class SqliteRewriteStore : IRewriteStore
         if (!_queue.Writer.TryWrite(new WriteOp.Event(row))) Interlocked.Increment(ref DroppedWrites);
     }
 
+    public IReadOnlyList<TemplateRow> Templates(DateTimeOffset minLearned) => Read(c =>
+        c.Query<(string LearnKey, string Lane, string PartitionHash, string Prefix, string Suffix, long LearnedFrom, long LearnedAt)>("""
+            SELECT learn_key, lane, partition_hash, prefix, suffix, learned_from, learned_at FROM templates
+            WHERE learned_at >= @min ORDER BY learned_at
+            """, new { min = minLearned.ToUnixTimeMilliseconds() })
+            .Select(r => new TemplateRow(r.LearnKey, r.Lane, r.PartitionHash, r.Prefix, r.Suffix, (int)r.LearnedFrom,
+                DateTimeOffset.FromUnixTimeMilliseconds(r.LearnedAt))).ToList());
+
+    public void SaveTemplate(TemplateRow row)
+    {
+        if (!_queue.Writer.TryWrite(new WriteOp.Template(row))) Interlocked.Increment(ref DroppedWrites);
+    }
+
     public async Task<IReadOnlyList<long>> PurgeAsync(PurgeFilter filter, CancellationToken cancel)
     {
         if (filter.IsEmpty) throw new ArgumentException("a purge needs at least one of lane, partition, age or id");
@@ -274,12 +287,17 @@ public sealed class SqliteRewriteStore : IRewriteStore
             IReadOnlyDictionary<string, long> Prefixed(string prefix) => t.Where(p => p.Key.StartsWith(prefix, StringComparison.Ordinal))
                 .ToDictionary(p => p.Key[prefix.Length..], p => p.Value);
             return new LaneStats(lane, entries.GetValueOrDefault(lane), Get(Tally.Lookup("hit_exact")), Get(Tally.Lookup("hit_semantic")),
-                Get(Tally.Lookup("miss")), Get(Tally.Lookup("bypass")), Get(Tally.TokensSaved), Prefixed("dropped:"), Prefixed("refused:"));
+                Get(Tally.Lookup("miss")), Get(Tally.Lookup("bypass")), Get(Tally.TokensSaved), Prefixed("dropped:"), Prefixed("refused:"),
+                Prefixed(Tally.Question("")));
         }).ToList();
+        var templates = c.Query<(string LearnKey, string Lane, string PartitionHash, string Prefix, string Suffix, long LearnedFrom, long LearnedAt)>(
+                "SELECT learn_key, lane, partition_hash, prefix, suffix, learned_from, learned_at FROM templates ORDER BY lane, learned_at")
+            .Select(r => new TemplateRow(r.LearnKey, r.Lane, r.PartitionHash, r.Prefix, r.Suffix, (int)r.LearnedFrom,
+                DateTimeOffset.FromUnixTimeMilliseconds(r.LearnedAt))).ToList();
         long bytes = 0;
         foreach (var suffix in new[] { "", "-wal", "-shm" })
             if (File.Exists(FilePath + suffix)) bytes += new FileInfo(FilePath + suffix).Length;
-        return new StoreStats(lanes, bytes);
+        return new StoreStats(lanes, bytes, templates);
     });
 
     public long EntryCount => Interlocked.Read(ref _entryCount);
@@ -343,6 +361,9 @@ public sealed class SqliteRewriteStore : IRewriteStore
                     case WriteOp.Event ev:
                         InsertEvent(c, tx, ev.Row);
                         _eventCount++;
+                        break;
+                    case WriteOp.Template template:
+                        InsertTemplate(c, tx, template.Row);
                         break;
                     case WriteOp.Purge purge:
                         purge.Ids = Purge(c, tx, purge.Filter);
@@ -423,9 +444,22 @@ public sealed class SqliteRewriteStore : IRewriteStore
         VALUES (@at, @Lane, @PartitionHash, @Kind, @Question, @Candidate, @Score, @Verdict, @Reason)
         """, new { at = r.At.ToUnixTimeMilliseconds(), r.Lane, r.PartitionHash, r.Kind, r.Question, r.Candidate, r.Score, r.Verdict, r.Reason }, tx);
 
+    static void InsertTemplate(SqliteConnection c, SqliteTransaction tx, TemplateRow t) => c.Execute("""
+        INSERT INTO templates (learn_key, lane, partition_hash, prefix, suffix, learned_from, learned_at)
+        VALUES (@LearnKey, @Lane, @PartitionHash, @Prefix, @Suffix, @LearnedFrom, @at)
+        ON CONFLICT (learn_key, prefix, suffix) DO NOTHING
+        """, new { t.LearnKey, t.Lane, t.PartitionHash, t.Prefix, t.Suffix, t.LearnedFrom, at = t.LearnedAt.ToUnixTimeMilliseconds() }, tx);
+
     List<long> Purge(SqliteConnection c, SqliteTransaction tx, PurgeFilter f)
     {
         long? before = f.OlderThan is { } age ? (DateTimeOffset.UtcNow - age).ToUnixTimeMilliseconds() : null;
+        // Templates hold the app's prompt text, learned in a lane and partition: they go with that lane's or partition's entries.
+        if (f.Id is null)
+            c.Execute("""
+                DELETE FROM templates
+                WHERE (@Lane IS NULL OR lane = @Lane) AND (@PartitionHash IS NULL OR partition_hash = @PartitionHash)
+                  AND (@before IS NULL OR learned_at < @before)
+                """, new { f.Lane, f.PartitionHash, before }, tx);
         var ids = c.Query<long>("""
             DELETE FROM entries
             WHERE (@Lane IS NULL OR lane = @Lane) AND (@PartitionHash IS NULL OR partition_hash = @PartitionHash)
@@ -518,6 +552,8 @@ public sealed class SqliteRewriteStore : IRewriteStore
             var expired = c.Query<long>("DELETE FROM entries WHERE created < @min RETURNING id",
                 new { min = (DateTimeOffset.UtcNow - _options.Ttl).ToUnixTimeMilliseconds() }, tx).AsList();
             _entryCount -= expired.Count;
+            c.Execute("DELETE FROM templates WHERE learned_at < @min",
+                new { min = (DateTimeOffset.UtcNow - _options.Ttl).ToUnixTimeMilliseconds() }, tx);
             _eventCount -= c.Execute("DELETE FROM events WHERE at < @min",
                 new { min = (DateTimeOffset.UtcNow - _events.Retention).ToUnixTimeMilliseconds() }, tx);
             tx.Commit();
@@ -585,6 +621,11 @@ public sealed class SqliteRewriteStore : IRewriteStore
         public sealed class Event(EventRow row) : WriteOp
         {
             public EventRow Row { get; } = row;
+        }
+
+        public sealed class Template(TemplateRow row) : WriteOp
+        {
+            public TemplateRow Row { get; } = row;
         }
 
         public sealed class Purge(PurgeFilter filter) : WriteOp

@@ -74,15 +74,33 @@ public sealed record LaneStats(
     long Bypass,
     long TokensSaved,
     IReadOnlyDictionary<string, long> DropsByReason,
-    IReadOnlyDictionary<string, long> RefusalsByReason)
+    IReadOnlyDictionary<string, long> RefusalsByReason,
+    IReadOnlyDictionary<string, long>? QuestionsBySource = null)
 {
+    /// <summary>Lane calls by how their question was found (a QuestionSource word, or <c>unlocated</c>).</summary>
+    public IReadOnlyDictionary<string, long> Questions => QuestionsBySource ?? new Dictionary<string, long>();
+
     public long Hits => HitExact + HitSemantic;
 
     /// <summary>Hits over hits and misses; bypassed calls never gave the cache a chance, so they are left out.</summary>
     public double? HitRatio => Hits + Miss == 0 ? null : (double)Hits / (Hits + Miss);
 }
 
-public sealed record StoreStats(IReadOnlyList<LaneStats> Lanes, long FileBytes);
+public sealed record StoreStats(IReadOnlyList<LaneStats> Lanes, long FileBytes, IReadOnlyList<TemplateRow>? LearnedTemplates = null)
+{
+    public IReadOnlyList<TemplateRow> Templates => LearnedTemplates ?? [];
+}
+
+/// <summary>A prompt template learned from traffic (see Lanes.TemplateLearner), as stored.</summary>
+/// <param name="LearnKey">Hash of lane, model, the other messages, parameters and partition: where the template applies.</param>
+/// <param name="Lane">The lane's name.</param>
+/// <param name="PartitionHash">The partition it was learned in (a hash), so a purge by partition removes it.</param>
+/// <param name="Prefix">Stable text before the question.</param>
+/// <param name="Suffix">Stable text after the question.</param>
+/// <param name="LearnedFrom">Distinct calls it was inferred from.</param>
+/// <param name="LearnedAt">When; a template older than Store:Ttl is deleted and learned again from new calls.</param>
+public sealed record TemplateRow(string LearnKey, string Lane, string PartitionHash, string Prefix, string Suffix, int LearnedFrom,
+    DateTimeOffset LearnedAt);
 
 /// <summary>Names of the store's per-lane tallies.</summary>
 public static class Tally
@@ -91,6 +109,8 @@ public static class Tally
     public static string Dropped(string reason) => "dropped:" + reason;
     public static string Refused(string reason) => "refused:" + reason;
     public const string TokensSaved = "tokens_saved";
+    /// <summary>Lane calls by how the question was found: a QuestionSource word or <c>unlocated</c>.</summary>
+    public static string Question(string source) => "question:" + source;
 }
 
 /// <summary>The store could not do what was asked (locked, read-only, full, corrupt): the caller fails open.</summary>

@@ -87,7 +87,36 @@ public static class StatsCommand
                 foreach (var (reason, n) in lane[key]?.AsObject() ?? [])
                     reasons.Add(name, what, reason, Count(n!.GetValue<long>()));
         }
-        return reasons.Rows.Count > 0 ? [lanes, reasons] : [lanes];
+        var questions = new ReportTable("how questions were found", "lane", "found by", "calls");
+        foreach (var lane in body["lanes"]?.AsArray() ?? [])
+            foreach (var (source, n) in lane!["questionsBySource"]?.AsObject() ?? [])
+                questions.Add(lane["lane"]!.GetValue<string>(), source, Count(n!.GetValue<long>()));
+        var templates = new ReportTable("learned templates", "lane", "from calls", "learned", "template");
+        foreach (var t in body["templates"]?.AsArray() ?? [])
+            templates.Add(t!["lane"]!.GetValue<string>(), Count(t["learnedFrom"]!.GetValue<long>()),
+                t["learnedAt"]!.GetValue<DateTimeOffset>().ToString("yyyy-MM-dd HH:mm", CultureInfo.InvariantCulture),
+                Shorten(t["template"]!.GetValue<string>()));
+        List<ReportTable> tables = [lanes];
+        if (reasons.Rows.Count > 0) tables.Add(reasons);
+        if (questions.Rows.Count > 0) tables.Add(questions);
+        if (templates.Rows.Count > 0) tables.Add(templates);
+        return tables;
+    }
+
+    /// <summary>Most characters of a template shown in the table; the whole text is in --json and /admin/stats.</summary>
+    const int TemplateShown = 60;
+
+    /// <summary>A template on one line: line breaks shown as ⏎, and the middle cut around the question when long.</summary>
+    static string Shorten(string template)
+    {
+        var line = template.Replace("\r\n", "⏎").Replace('\n', '⏎').Replace('\r', '⏎');
+        if (line.Length <= TemplateShown) return line;
+        var at = line.IndexOf(AdminEndpoints.TemplateQuestion, StringComparison.Ordinal);
+        var half = (TemplateShown - AdminEndpoints.TemplateQuestion.Length) / 2;
+        var before = at <= half ? line[..at] : "…" + line[(at - half + 1)..at];
+        var afterStart = at + AdminEndpoints.TemplateQuestion.Length;
+        var after = line.Length - afterStart <= half ? line[afterStart..] : line[afterStart..(afterStart + half - 1)] + "…";
+        return before + AdminEndpoints.TemplateQuestion + after;
     }
 
     static string Count(long n) => n.ToString("N0", CultureInfo.InvariantCulture);

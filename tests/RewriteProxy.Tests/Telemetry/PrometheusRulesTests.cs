@@ -77,6 +77,7 @@ public sealed class PrometheusRulesTests
     [InlineData("< 0.5 * (lane:rewriteproxy_hit_ratio:rate5m offset 1d)", "< 0.8 * (lane:rewriteproxy_hit_ratio:rate5m offset 1d)", "RewriteProxyHitRatioCollapsed", "hit_ratio")]
     [InlineData("lane:rewriteproxy_upstream_error_ratio:rate5m > 0.05", "lane:rewriteproxy_upstream_error_ratio:rate5m > 0.1", "RewriteProxyUpstreamErrorRatioHigh", "upstream_failopen")]
     [InlineData("and on (instance, job) (up offset 5m)", "", "RewriteProxyFailOpen", "upstream_failopen")]
+    [InlineData("lane:rewriteproxy_question_unlocated_ratio:rate5m > 0.2", "lane:rewriteproxy_question_unlocated_ratio:rate5m > 0.6", "RewriteProxyQuestionUnlocated", "question")]
     public void Rule_tests_catch_a_changed_alert_threshold(string original, string changed, string alert, string testFile)
     {
         using var copy = new ConfigCopy();

@@ -93,6 +93,22 @@ public sealed class SemanticCache
 
     DateTimeOffset MinCreated => DateTimeOffset.UtcNow - _options.Ttl;
 
+    /// <summary>Exact only: for calls whose question is not located with confidence, and for an earlier scope.</summary>
+    /// <exception cref="CacheFailure">the store failed.</exception>
+    public LookupResult LookupExact(string scopeKey, string normalized)
+    {
+        try
+        {
+            return _store.FindExact(scopeKey, normalized, MinCreated) is { } exact
+                ? new LookupResult(LookupKind.HitExact, exact, null, null)
+                : new LookupResult(LookupKind.Miss, null, null, null);
+        }
+        catch (StoreException e)
+        {
+            throw new CacheFailure("store", e.Message, e);
+        }
+    }
+
     /// <summary>Exact, then semantic.</summary>
     /// <exception cref="CacheFailure">the store, the index or the embedder failed.</exception>
     public LookupResult Lookup(LaneOptions lane, string scopeKey, string question, string normalized, string partition)

@@ -56,6 +56,7 @@ public static class ProxyApp
         services.AddSingleton<Passthrough>();
         services.AddSingleton<LaneUpstream>();
         services.AddSingleton<LaneHandler>();
+        services.AddSingleton<QuestionFinder>();
         services.AddSingleton<FailOpenLog>();
         services.AddSingleton<LaneTally>();
         services.AddSingleton<IEmbedder>(sp =>
@@ -87,6 +88,7 @@ public static class ProxyApp
         {
             var cache = app.Services.GetRequiredService<SemanticCache>();
             cache.Start();
+            app.Services.GetRequiredService<QuestionFinder>().LoadTemplates();
             app.Lifetime.ApplicationStarted.Register(() => _ = cache.LoadIndexAsync());
         }
         catch (EmbedderLoadException e)

@@ -24,6 +24,7 @@ public sealed class LaneHandler(
     Passthrough passthrough,
     FailOpenLog failOpen,
     LaneTally tally,
+    QuestionFinder finder,
     IHostApplicationLifetime lifetime,
     ILogger<LaneHandler> log)
 {
@@ -46,6 +47,7 @@ public sealed class LaneHandler(
         public const string Mode = "X-Rewrite-Mode";
         public const string Fallback = "X-Rewrite-Fallback";
         public const string Lane = "X-Rewrite-Lane";
+        public const string Question = "X-Rewrite-Question";
     }
 
     public async Task HandleAsync(HttpContext context, string laneName)
@@ -80,8 +82,9 @@ public sealed class LaneHandler(
         }
 
         var partition = PartitionKey.Of(options.Partition, context.Request.Headers);
-        var scope = ScopeKey.Compute(lane, request, site, partition);
-        var normalized = QuestionText.Normalize(site.Question);
+        var located = finder.Resolve(lane, request, site, partition);
+        context.Response.Headers[Header.Question] = located.HeaderValue;
+        (site, var scope, var normalized) = (located.Site, located.Scope, located.Normalized);
 
         float[]? questionVector = null;
         if (!directives.NoCache && !directives.NoStore)
@@ -89,7 +92,11 @@ public sealed class LaneHandler(
             LookupResult found;
             try
             {
-                found = cache.Lookup(lane, scope, site.Question, normalized, partition);
+                // Unsure where the question is: only the whole message, exactly, is safe to look up.
+                found = located.Confident ? cache.Lookup(lane, scope, site.Question, normalized, partition) : cache.LookupExact(scope, normalized);
+                if (found.Kind == LookupKind.Miss && located.EarlierScope is { } earlier
+                    && cache.LookupExact(earlier, located.WholeNormalized!) is { Kind: LookupKind.HitExact } before)
+                    found = before;
             }
             catch (CacheFailure f)
             {
@@ -105,8 +112,10 @@ public sealed class LaneHandler(
             questionVector = found.QuestionVector;
         }
 
-        var miss = new Miss(lane, request, site, scope, normalized, partition, context.Request.Headers, Store: !directives.NoStore,
-            questionVector);
+        // While unsure, the drift guard measures against the best guess and drops nothing.
+        var guarded = located.Confident ? lane : lane with { Mode = GuardMode.Observe };
+        var miss = new Miss(guarded, request, site, scope, normalized, partition, context.Request.Headers, Store: !directives.NoStore,
+            questionVector, located.Confident);
         MissOutcome outcome;
         var joined = false;
         try
@@ -226,7 +235,7 @@ public sealed class LaneHandler(
 
     // QuestionVector: the question's vector when the lookup already embedded it; null when the lookup was skipped.
     sealed record Miss(LaneOptions Lane, ChatRequest Request, QuestionSite Site, string Scope, string Normalized, string Partition,
-        IHeaderDictionary Headers, bool Store, float[]? QuestionVector);
+        IHeaderDictionary Headers, bool Store, float[]? QuestionVector, bool Located);
 
     /// <summary>
     /// Vectors of the question and of the rewrites, in one model run: the question's own vector is reused when the
@@ -285,18 +294,29 @@ public sealed class LaneHandler(
     async Task<MissOutcome> GuardSiblingsAsync(Miss miss, ChatCompletion completion, UpstreamAnswer answer)
     {
         var lane = miss.Lane;
-        var parsed = SiblingParser.Parse(completion.Content, lane.Candidates);
+        // The container the model used (tags, a list, JSON, a fence) is read first, so the answer can keep it.
+        var container = SiblingContainer.Read(completion.Content, lane.Candidates);
+        var parsed = container.Candidates;
         var candidates = parsed.Count > lane.MaxCandidates ? parsed.Take(lane.MaxCandidates).ToList() : parsed;
         var (question, vectors) = EmbedJudged(miss, candidates);
         var judgement = SiblingGuard.Judge(question, candidates, vectors, completion.Content, lane);
         Record(miss, judgement.Kept);
         Record(miss, judgement.Dropped);
-        var content = judgement.Content;
+        var fallback = SiblingFallback.Needed(judgement);
+        var content = !judgement.Enforced ? judgement.Content
+            : fallback ? SiblingFallback.Content(miss.Site.Question, container)
+            : container.Render(judgement.Kept.Select(k => k.Text).ToList()) ?? judgement.Content;
         var scores = new EntryScores(judgement.MaxKeptDrift, judgement.Dropped.Count, judgement.Kept.Select(k => k.Drift).ToArray());
-        // Nothing kept is not worth keeping: the next call may well bring usable siblings.
-        if (miss.Store && content.Length > 0) await StoreAsync(miss, question, content, scores, completion);
+        // A fallback is not worth keeping: the next call may well bring usable siblings.
+        if (miss.Store && !fallback && content.Length > 0) await StoreAsync(miss, question, content, scores, completion);
         var body = judgement.Enforced ? completion.WithContent(content) : completion.Body;
-        return new MissOutcome.Answer(body, judgement.MaxKeptDrift, judgement.Dropped.Count, !judgement.Enforced, answer.Headers);
+        IEnumerable<KeyValuePair<string, string[]>> headers = answer.Headers;
+        if (fallback)
+        {
+            QuestionMetrics.Fallbacks.WithLabels(lane.Name).Inc();
+            headers = [.. headers, KeyValuePair.Create(Header.Fallback, new[] { SiblingFallback.HeaderValue })];
+        }
+        return new MissOutcome.Answer(body, judgement.MaxKeptDrift, judgement.Dropped.Count, !judgement.Enforced, [.. headers]);
     }
 
     async Task<(MissOutcome? Outcome, bool Retry)> GuardDraftAsync(Miss miss, ChatCompletion completion, UpstreamAnswer answer,
@@ -318,6 +338,7 @@ public sealed class LaneHandler(
                 return (null, true);
             case DraftDecision.Fallback:
                 // The question stands in for the draft: retrieval degrades to the plain question. Not cached.
+                QuestionMetrics.Fallbacks.WithLabels(lane.Name).Inc();
                 return (new MissOutcome.Answer(completion.WithContent(miss.Site.Question), null, dropped, false,
                     [.. answer.Headers, KeyValuePair.Create(Header.Fallback, new[] { "question" })]), false);
             default:
@@ -333,8 +354,13 @@ public sealed class LaneHandler(
         foreach (var j in judged)
         {
             var verdict = j.Accepted ? "accepted" : "dropped";
-            ProxyMetrics.Drift.WithLabels(lane, verdict).Observe(j.Drift);
-            if (!j.Accepted) tally.Dropped(lane, j.Reason ?? "drift");
+            // Drift against a guessed question goes to the event log only: in the metrics it would set off the
+            // drop-ratio alert for calls whose question was never found (they have their own counter).
+            if (miss.Located)
+            {
+                ProxyMetrics.Drift.WithLabels(lane, verdict).Observe(j.Drift);
+                if (!j.Accepted) tally.Dropped(lane, j.Reason ?? "drift");
+            }
             cache.Store.AppendEvent(new EventRow(DateTimeOffset.UtcNow, lane, miss.Partition, "rewrite", miss.Site.Question, j.Text,
                 j.Drift, verdict, j.Reason));
         }
@@ -342,7 +368,9 @@ public sealed class LaneHandler(
 
     async Task StoreAsync(Miss miss, float[] questionVector, string content, EntryScores scores, ChatCompletion completion)
     {
-        var entry = new NewEntry(miss.Scope, miss.Partition, miss.Lane.Name, miss.Site.Question, miss.Normalized, questionVector,
+        // An unlocated call's entry is found only by its whole message: no vector, so no semantic lookup can reach it.
+        var entry = new NewEntry(miss.Scope, miss.Partition, miss.Lane.Name, miss.Located ? miss.Site.Question : miss.Site.MessageText,
+            miss.Normalized, miss.Located ? questionVector : null,
             cache.Embedder.ModelId, content, scores, completion.Model, completion.PromptTokens, completion.CompletionTokens,
             DateTimeOffset.UtcNow);
         try

@@ -20,9 +20,9 @@ public sealed record LocatedQuestion(int Start, int Length, string Source, bool 
 /// </remarks>
 public static class QuestionLocator
 {
-    public static LocatedQuestion Locate(string text, string lane, string learningKey, TemplateLearner learner)
+    public static LocatedQuestion Locate(string text, string lane, string learningKey, string partition, TemplateLearner learner)
     {
-        if (learner.Locate(lane, learningKey, text) is { } t)
+        if (learner.Locate(lane, learningKey, partition, text) is { } t)
             return new LocatedQuestion(t.Start, t.Length, QuestionSource.Template, true, t.Template);
         return LocateWithoutTemplate(text);
     }

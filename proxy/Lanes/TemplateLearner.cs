@@ -4,12 +4,14 @@ namespace RewriteProxy.Lanes;
 /// A lane's prompt template, learned from traffic: the stable text before and after the question in the last user
 /// message, within one learning key (lane, model, the other messages, parameters, partition; hashed).
 /// </summary>
+/// <param name="Lane">The lane's name.</param>
 /// <param name="Key">The learning key: a hash, holding no text.</param>
+/// <param name="Partition">The partition it was learned in (a hash): a purge by partition removes it.</param>
 /// <param name="Prefix">Stable text before the question (may be empty when <paramref name="Suffix"/> is not).</param>
 /// <param name="Suffix">Stable text after the question.</param>
 /// <param name="LearnedFrom">How many distinct calls the template was inferred from.</param>
 /// <param name="LearnedAt">When it was inferred.</param>
-public sealed record LearnedTemplate(string Lane, string Key, string Prefix, string Suffix, int LearnedFrom, DateTimeOffset LearnedAt)
+public sealed record LearnedTemplate(string Lane, string Key, string Partition, string Prefix, string Suffix, int LearnedFrom, DateTimeOffset LearnedAt)
 {
     /// <summary>The question's span in <paramref name="text"/> when the text fits this template, else null.</summary>
     public (int Start, int Length)? Match(string text)
@@ -100,7 +102,7 @@ public sealed class TemplateLearner
     /// The question span of <paramref name="text"/> by a learned template of <paramref name="key"/>; otherwise the text
     /// is kept as a sample and null is returned (a template may be learned from it and earlier samples).
     /// </summary>
-    public (int Start, int Length, LearnedTemplate Template)? Locate(string lane, string key, string text)
+    public (int Start, int Length, LearnedTemplate Template)? Locate(string lane, string key, string partition, string text)
     {
         LearnedTemplate? learned = null;
         lock (_gate)
@@ -114,7 +116,7 @@ public sealed class TemplateLearner
                         return (span.Start, span.Length, t);
                     }
             if (text.Length > MaxMessageChars || list?.Count >= MaxTemplatesPerKey) return null;
-            learned = Observe(lane, key, text);
+            learned = Observe(lane, key, partition, text);
         }
         if (learned is null) return null;
         Learned?.Invoke(learned);
@@ -128,7 +130,7 @@ public sealed class TemplateLearner
         return list;
     }
 
-    LearnedTemplate? Observe(string lane, string key, string text)
+    LearnedTemplate? Observe(string lane, string key, string partition, string text)
     {
         if (!_pending.TryGetValue(key, out var samples))
         {
@@ -148,7 +150,7 @@ public sealed class TemplateLearner
         // All samples first; then only the latest few, in case older ones were of another shape.
         var template = Infer(samples) ?? Infer(samples.TakeLast(MinDistinctCalls).ToList());
         if (template is null) return null;
-        var learned = new LearnedTemplate(lane, key, template.Value.Prefix, template.Value.Suffix,
+        var learned = new LearnedTemplate(lane, key, partition, template.Value.Prefix, template.Value.Suffix,
             samples.Count(s => Fits(template.Value, s)), DateTimeOffset.UtcNow);
         ListFor(key).Add(learned);
         samples.RemoveAll(s => learned.Match(s) is not null);

@@ -19,6 +19,7 @@ public static class ProxyMetrics
     /// </summary>
     public static void Declare(IEnumerable<RewriteProxy.Hosting.LaneOptions> lanes)
     {
+        lanes = lanes.ToList();
         foreach (var lane in lanes)
         {
             var name = lane.Name;
@@ -33,6 +34,7 @@ public static class ProxyMetrics
             Entries.WithLabels(name);
         }
         foreach (var r in FailOpenReasons) FailOpen.WithLabels(r);
+        QuestionMetrics.Declare(lanes);
     }
 
     /// <summary>Dense between 0.1 and 1.0, where drift thresholds live; 1.0–2.0 catches the opposite-meaning tail.</summary>

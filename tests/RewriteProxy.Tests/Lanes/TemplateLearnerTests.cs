@@ -14,7 +14,7 @@ public sealed class TemplateLearnerTests
         {
             calls++;
             var text = template(q);
-            if (learner.Locate("siblings", Key, text) is { } found)
+            if (learner.Locate("siblings", Key, "p", text) is { } found)
             {
                 Assert.Equal(q, text.Substring(found.Start, found.Length));
                 return calls;
@@ -54,7 +54,7 @@ public sealed class TemplateLearnerTests
         // Once learned, every later question is located by the template.
         foreach (var q in PromptShapes.Questions.Skip(3))
         {
-            var found = learner.Locate("siblings", Key, template(q))!.Value;
+            var found = learner.Locate("siblings", Key, "p", template(q))!.Value;
             Assert.Equal(q, template(q).Substring(found.Start, found.Length));
         }
     }
@@ -88,7 +88,7 @@ public sealed class TemplateLearnerTests
     {
         var learner = new TemplateLearner();
         var text = PromptShapes.Unmarked(PromptShapes.Questions[0]);
-        for (var i = 0; i < 5; i++) Assert.Null(learner.Locate("siblings", Key, text));
+        for (var i = 0; i < 5; i++) Assert.Null(learner.Locate("siblings", Key, "p", text));
         Assert.Empty(learner.Snapshot());
     }
 
@@ -108,7 +108,7 @@ public sealed class TemplateLearnerTests
     {
         var learner = new TemplateLearner();
         Assert.Equal(3, CallsToLearn(learner, PromptShapes.Hyde, PromptShapes.Questions));
-        Assert.Null(learner.Locate("siblings", "another-key", PromptShapes.Hyde(PromptShapes.Questions[4])));
+        Assert.Null(learner.Locate("siblings", "another-key", "p", PromptShapes.Hyde(PromptShapes.Questions[4])));
         Assert.Equal(3, CallsToLearn(learner, PromptShapes.Unmarked, PromptShapes.Questions));
         Assert.Equal(2, learner.Snapshot().Count);
     }
@@ -126,9 +126,9 @@ public sealed class TemplateLearnerTests
     public void Templates_loaded_from_the_store_locate_at_once()
     {
         var learner = new TemplateLearner();
-        learner.Load([new LearnedTemplate("draft", Key, "Please write a passage to answer the question\nQuestion: ", "\nPassage:", 3, DateTimeOffset.UtcNow)]);
+        learner.Load([new LearnedTemplate("draft", Key, "p", "Please write a passage to answer the question\nQuestion: ", "\nPassage:", 3, DateTimeOffset.UtcNow)]);
         var text = PromptShapes.Hyde(PromptShapes.Questions[3]);
-        var found = learner.Locate("draft", Key, text)!.Value;
+        var found = learner.Locate("draft", Key, "p", text)!.Value;
         Assert.Equal(PromptShapes.Questions[3], text.Substring(found.Start, found.Length));
     }
 

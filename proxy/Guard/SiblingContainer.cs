@@ -46,12 +46,15 @@ public sealed class SiblingContainer
     static readonly Regex Number = new(@"^\s*\(?\d{1,2}(?<p>[.):])(?!\d)", RegexOptions.CultureInvariant, RegexBudget);
     static readonly Regex Bullet = new(@"^\s*(?<b>[-*•–—+·▪◦‣])\s", RegexOptions.CultureInvariant, RegexBudget);
 
+    const int NotASibling = -2;
+
     static readonly JsonSerializerOptions Relaxed = new() { Encoder = JavaScriptEncoder.UnsafeRelaxedJsonEscaping };
 
     readonly string _completion;
     // Where the container's inner text (lines) or the JSON text sits in the completion.
     readonly (int Start, int Length)? _span;
-    // Lines containers: every line of the inner text. Both kinds: which line (or JSON item) is which candidate, -1 for none.
+    // Lines containers: every line of the inner text. Both kinds: which line (or JSON item) is which candidate;
+    // -1 for text around the list (kept), NotASibling for an item that is no candidate (removed).
     readonly string[]? _lines;
     readonly int[]? _candidateOfLine;
     // JSON: the parsed root and the indent the model used.
@@ -139,16 +142,15 @@ public sealed class SiblingContainer
             _ => null,
         };
         if (array is null || array.Count == 0) return null;
-        // Every string of the array is a sibling the model offered, so each is judged (the Lines rule), whatever
-        // the lane's rule for free text; an empty string is left where it is.
+        // Each string is judged under the lane's rule, as a line would be; one that is no candidate (a statement
+        // under the questions rule, an empty string) leaves the list, as it leaves a plain answer.
         var candidates = new List<string>();
         var candidateOfItem = new int[array.Count];
         for (var i = 0; i < array.Count; i++)
         {
-            var item = array[i]!.GetValue<string>().ReplaceLineEndings(" ");
-            var cleaned = SiblingParser.Parse(item, CandidateRule.Lines).FirstOrDefault() ?? item.Trim();
-            candidateOfItem[i] = cleaned.Length == 0 ? -1 : candidates.Count;
-            if (cleaned.Length > 0) candidates.Add(cleaned);
+            var found = SiblingParser.Parse(array[i]!.GetValue<string>().ReplaceLineEndings(" "), rule);
+            candidateOfItem[i] = found.Count == 0 ? NotASibling : candidates.Count;
+            if (found.Count > 0) candidates.Add(found[0]);
         }
         if (candidates.Count == 0) return null;
         var offset = start + text.IndexOf(trimmed, StringComparison.Ordinal);
@@ -194,6 +196,16 @@ public sealed class SiblingContainer
             else if (fenced) kind = ContainerKind.Fence;
             else return null;
         }
+        // An item of the list that is no candidate (a statement, an answer instead of a question) leaves the list as
+        // it leaves a plain answer: inside tags or a fence every non-blank line is an item; in a bare list, a line with
+        // the list's marker.
+        var listMarker = markers[0];
+        for (var i = 0; i < lines.Length; i++)
+        {
+            if (candidateOfLine[i] >= 0 || lines[i].Trim().Length == 0) continue;
+            var item = kind is ContainerKind.Tags or ContainerKind.Fence || MarkerOf(lines[i]) == listMarker;
+            if (item) candidateOfLine[i] = NotASibling;
+        }
         return new SiblingContainer(completion, kind, fenced, candidates, (from, to - from), lines, candidateOfLine);
     }
 
@@ -223,7 +235,7 @@ public sealed class SiblingContainer
             var root = _jsonRoot!.DeepClone();
             var array = root is JsonArray a ? a : ((JsonObject)root).Select(p => p.Value).OfType<JsonArray>().First(IsStrings);
             var keep = new bool[array.Count];
-            for (var i = 0; i < array.Count; i++) keep[i] = _candidateOfLine![i] < 0 || Take(Candidates[_candidateOfLine[i]]);
+            for (var i = 0; i < array.Count; i++) keep[i] = _candidateOfLine![i] >= 0 && Take(Candidates[_candidateOfLine[i]]);
             for (var i = array.Count - 1; i >= 0; i--)
                 if (!keep[i]) array.RemoveAt(i);
             var json = WriteJson(root);
@@ -236,7 +248,7 @@ public sealed class SiblingContainer
         for (var i = 0; i < _lines.Length; i++)
         {
             var c = _candidateOfLine![i];
-            if (c < 0 || Take(Candidates[c])) lines.Add(_lines[i]);
+            if (c == -1 || (c >= 0 && Take(Candidates[c]))) lines.Add(_lines[i]);
         }
         var (from, count) = _span!.Value;
         return _completion[..from] + string.Join('\n', lines) + _completion[(from + count)..];
@@ -263,7 +275,8 @@ public sealed class SiblingContainer
         for (var i = 0; i < _lines.Length; i++)
         {
             var c = _candidateOfLine![i];
-            if (c < 0) lines.Add(_lines[i]);
+            if (c == -1) lines.Add(_lines[i]);
+            else if (c == NotASibling) continue;
             else if (!placed)
             {
                 var line = _lines[i].TrimEnd('\r');

@@ -1,10 +1,13 @@
 // Runs rewrite calls the way RAG apps built on LangChain.js make them (versions pinned in package.json) and prints,
-// as one JSON line, what each app saw: the list (or passage) its own parser returned, the raw text, and the proxy's
+// as one JSON line (an array, one result per call), what each app saw: the list (or passage) its own parser returned, the raw text, and the proxy's
 // X-Rewrite-* headers. With `direct`, the same call is also made straight to the upstream, so a test can compare the
 // parser's list through the proxy with the list of a direct call.
 // Input (argv[2], JSON): { proxy: { siblings, draft }, upstream, apiKey, model,
-//   calls: [ { app: "multiquery" | "hyde" | "inhouse-numbered" | "inhouse-json" | "inhouse-unmarked" | "inhouse-draft",
-//              question, direct? } ] }
+//   calls: [ { app: "multiquery" | "hyde" | "inhouse-numbered" | "inhouse-json" | "inhouse-unmarked" | "inhouse-draft"
+//              | "bare-siblings" | "bare-draft", question, direct?, apiKey? } ] }
+//   bare-*: the question alone as the user message (today's fixture traffic), for a baseline.
+//   apiKey per call: another credential is another partition, so a test can keep calls apart; model per call (in-house
+//   and bare apps) overrides spec.model.
 //   proxy.siblings / proxy.draft: the lanes' base URLs (…/lane/siblings/v1); upstream: the provider's base URL (…/v1).
 import { ChatOpenAI } from '@langchain/openai';
 import { MultiQueryRetriever } from '@langchain/classic/retrievers/multi_query';
@@ -13,15 +16,8 @@ import { MemoryVectorStore } from '@langchain/classic/vectorstores/memory';
 import { BaseRetriever } from '@langchain/core/retrievers';
 import { FakeEmbeddings } from '@langchain/core/utils/testing';
 import { HumanMessage, SystemMessage } from '@langchain/core/messages';
-import { createRequire } from 'node:module';
-import { readFileSync } from 'node:fs';
 
 const spec = JSON.parse(process.argv[2]);
-const require = createRequire(import.meta.url);
-const versions = Object.fromEntries(['@langchain/classic', '@langchain/openai', '@langchain/core'].map(name => {
-  const dir = require.resolve(name).replace(/(node_modules\/@langchain\/[^/]+)\/.*/, '$1');
-  return [name, JSON.parse(readFileSync(`${dir}/package.json`, 'utf8')).version];
-}));
 
 // What the proxy answered on the last call: its X-Rewrite-* headers and the text, read off the wire by a fetch
 // wrapper (LangChain returns parsed values, not responses).
@@ -35,8 +31,8 @@ async function recordingFetch(url, init) {
   return response;
 }
 
-function llm(baseURL) {
-  return new ChatOpenAI({ model: spec.model, apiKey: spec.apiKey, temperature: 0, maxRetries: 0,
+function llm(baseURL, apiKey, model) {
+  return new ChatOpenAI({ model: model ?? spec.model, apiKey: apiKey ?? spec.apiKey, temperature: 0, maxRetries: 0,
     configuration: { baseURL, fetch: recordingFetch } });
 }
 
@@ -63,29 +59,33 @@ const inHouse = {
     prompt: q => `We run a help centre for a regional transit operator.\n\n${q}\n\nList related questions a rider might also ask, one per line.`,
     parse: text => text.split('\n').map(l => l.trim()).filter(l => l !== ''),
   },
+  'bare-siblings': { prompt: q => q, parse: text => text.split('\n').map(l => l.trim()).filter(l => l !== ''), bare: true },
+  'bare-draft': { prompt: q => q, parse: text => text, bare: true, draft: true },
   'inhouse-draft': {
     prompt: q => `Draft the opening paragraph of a help-centre article for the question in the tags.\n<question>${q}</question>\nPlain prose, no headings.`,
     parse: text => text,
+    draft: true,
   },
 };
 
-async function run(app, question, baseURLs) {
+async function run(app, question, baseURLs, apiKey, model) {
   seen = null;
   if (app === 'multiquery') {
     const retriever = new RecordingRetriever();
-    const mq = MultiQueryRetriever.fromLLM({ llm: llm(baseURLs.siblings), retriever });
+    const mq = MultiQueryRetriever.fromLLM({ llm: llm(baseURLs.siblings, apiKey), retriever });
     await mq.invoke(question);
     return { parsed: retriever.queries, ...seen };
   }
   if (app === 'hyde') {
     const store = new MemoryVectorStore(new FakeEmbeddings());
-    const hyde = new HydeRetriever({ vectorStore: store, llm: llm(baseURLs.draft), promptTemplate: 'websearch', k: 1 });
+    const hyde = new HydeRetriever({ vectorStore: store, llm: llm(baseURLs.draft, apiKey), promptTemplate: 'websearch', k: 1 });
     await hyde.invoke(question);
     return { parsed: seen?.text ?? null, ...seen };
   }
   const shape = inHouse[app];
-  const lane = app === 'inhouse-draft' ? baseURLs.draft : baseURLs.siblings;
-  const message = await llm(lane).invoke([new SystemMessage(SYSTEM), new HumanMessage(shape.prompt(question))]);
+  const lane = shape.draft ? baseURLs.draft : baseURLs.siblings;
+  const messages = shape.bare ? [new HumanMessage(question)] : [new SystemMessage(SYSTEM), new HumanMessage(shape.prompt(question))];
+  const message = await llm(lane, apiKey, model).invoke(messages);
   const text = typeof message.content === 'string' ? message.content : message.content.map(p => p.text ?? '').join('');
   let parsed;
   try { parsed = shape.parse(text); } catch (e) { parsed = { parseError: String(e?.message ?? e) }; }
@@ -97,12 +97,12 @@ const direct = { siblings: spec.upstream, draft: spec.upstream };
 for (const call of spec.calls) {
   const result = { app: call.app, question: call.question };
   try {
-    Object.assign(result, await run(call.app, call.question, spec.proxy));
-    if (call.direct) result.direct = await run(call.app, call.question, direct);
+    Object.assign(result, await run(call.app, call.question, spec.proxy, call.apiKey, call.model));
+    if (call.direct) result.direct = await run(call.app, call.question, direct, call.apiKey, call.model);
   } catch (e) {
     result.error = String(e?.message ?? e);
     result.status = e?.status ?? seen?.status ?? null;
   }
   results.push(result);
 }
-process.stdout.write(JSON.stringify({ versions, results }) + '\n');
+process.stdout.write(JSON.stringify(results) + '\n');

@@ -67,16 +67,20 @@ public static class ScriptedAnswers
         return set.Answer.Split('\n').Select(l => Marker.Replace(l, "").Trim()).Where(labelled.Contains).ToList();
     }
 
-    /// <summary>Three on-topic siblings for a question the corpus has none for.</summary>
+    /// <summary>
+    /// Three on-topic siblings for a question the corpus has none for, each about the second half of the question:
+    /// the whole question inside a sibling is an echo (drift 0.02–0.13 in a one-off run on 12 questions), half of it
+    /// drifts 0.04–0.41.
+    /// </summary>
     static List<string> Made(string question)
     {
-        var topic = question.TrimEnd('?', ' ');
-        var lower = char.ToLowerInvariant(topic[0]) + topic[1..];
+        var words = question.TrimEnd('?', ' ').Split(' ');
+        var half = string.Join(' ', words.Skip(words.Length / 2)).ToLowerInvariant();
         return
         [
-            $"Where is the official guidance on this: {lower}?",
-            $"Who can I contact to ask: {lower}?",
-            $"Are there exceptions when asking {lower}?",
+            $"Where can I read the policy on {half}?",
+            $"How long does it take to sort out {half}?",
+            $"What happens next with {half}?",
         ];
     }
 

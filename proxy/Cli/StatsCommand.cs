@@ -103,8 +103,11 @@ public static class StatsCommand
         return tables;
     }
 
-    /// <summary>Most characters of a template shown in the table; the whole text is in --json and /admin/stats.</summary>
-    const int TemplateShown = 60;
+    /// <summary>
+    /// Most characters of a template shown in the table, so that the row fits 80 columns beside the lane, the count
+    /// and the date; the whole text is in --json and /admin/stats.
+    /// </summary>
+    const int TemplateShown = 32;
 
     /// <summary>A template on one line: line breaks shown as ⏎, and the middle cut around the question when long.</summary>
     static string Shorten(string template)

@@ -56,6 +56,34 @@ public class StatsCommandTests
     }
 
     [Fact]
+    public async Task Stats_show_how_questions_were_found_and_the_learned_templates_in_80_columns()
+    {
+        var path = Path.Combine(CliTestKit.NewFolder(), "cache.db");
+        await using (var store = CliTestKit.OpenStore(path))
+        {
+            store.Count("siblings", Tally.Question("template"), 40);
+            store.Count("siblings", Tally.Question("unlocated"), 2);
+            store.SaveTemplate(new TemplateRow("key", "siblings", "partition",
+                "You are an assistant for the water utility's help desk. Write related questions.\n\nOriginal question: ", "", 3,
+                DateTimeOffset.Parse("2026-12-02T04:30:00Z")));
+            await store.FlushAsync(CancellationToken.None);
+        }
+
+        var body = await StatsCommand.ReadAsync(new StatsTarget(path, null, null), CancellationToken.None);
+        var template = Assert.Single(body["templates"]!.AsArray())!;
+        Assert.EndsWith("Original question: {question}", (string)template["template"]!);
+        Assert.Equal(3, (int)template["learnedFrom"]!);
+
+        var (console, text) = CliTestKit.Console80();
+        Assert.Equal(ExitCodes.Ok, await StatsCommand.RunAsync(new StatsTarget(path, null, null), json: false, console, TextWriter.Null, CancellationToken.None));
+        var output = text.ToString();
+        Assert.Matches(@"siblings\s+template\s+40", output);
+        Assert.Matches(@"siblings\s+unlocated\s+2", output);
+        Assert.Matches(@"siblings +3 +2026-12-02 04:30 +…[^\n]*question: \{question\}", output);
+        Assert.All(output.Split('\n'), line => Assert.True(line.TrimEnd().Length <= 80, line));
+    }
+
+    [Fact]
     public async Task Stats_through_the_admin_API_equal_stats_of_the_same_store_file()
     {
         await using var proxy = await TestProxy.StartAsync(new Uri("http://127.0.0.1:9/v1/"), new Dictionary<string, string?> { ["Admin:Token"] = AdminToken });

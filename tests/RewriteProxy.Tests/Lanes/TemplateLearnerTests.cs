@@ -84,6 +84,13 @@ public sealed class TemplateLearnerTests
     }
 
     [Fact]
+    public void A_one_line_template_is_learned_when_a_delimiter_ends_it_and_not_when_plain_words_do()
+    {
+        Assert.Equal(3, CallsToLearn(new TemplateLearner(), q => $"Rephrase this for search: {q}", PromptShapes.Questions));
+        Assert.Equal(-1, CallsToLearn(new TemplateLearner(), q => $"Rephrase this for search {q}", PromptShapes.Questions));
+    }
+
+    [Fact]
     public void A_repeated_question_counts_once_toward_learning()
     {
         var learner = new TemplateLearner();

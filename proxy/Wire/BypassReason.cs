@@ -20,6 +20,12 @@ public static class BypassReason
     public const string StoredPrompt = "stored_prompt";
     /// <summary>Responses API: extra output was asked for (<c>include</c>).</summary>
     public const string Include = "include";
+    /// <summary>Chat completions: a predicted output was sent.</summary>
+    public const string Prediction = "prediction";
+    /// <summary>Chat completions: more than one choice (<c>n</c> other than 1).</summary>
+    public const string Choices = "n";
+    /// <summary>No user message with text to take the question from.</summary>
+    public const string NoQuestion = "no_question";
     /// <summary>Token log-probabilities were asked for.</summary>
     public const string Logprobs = "logprobs";
     /// <summary>Anthropic Messages: extended thinking blocks were asked for or sent.</summary>

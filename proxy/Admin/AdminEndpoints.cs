@@ -5,7 +5,6 @@ using Microsoft.AspNetCore.Builder;
 using Microsoft.AspNetCore.Http;
 using Microsoft.AspNetCore.Routing;
 using RewriteProxy.Cache;
-using RewriteProxy.Hosting;
 using RewriteProxy.Wire;
 
 namespace RewriteProxy.Admin;
@@ -84,7 +83,7 @@ public static class AdminEndpoints
             TimeSpan? olderThan = null;
             if (request?.OlderThan is { } text)
             {
-                if (!OptionsReader.TryParseDuration(text, out var age) || age <= TimeSpan.Zero)
+                if (!DurationText.TryParse(text, out var age) || age <= TimeSpan.Zero)
                     return Error(400, $"olderThan = '{text}' is not a duration; use e.g. 7d, 12h, 30m.");
                 olderThan = age;
             }

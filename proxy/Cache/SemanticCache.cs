@@ -1,7 +1,7 @@
 using System.Diagnostics;
 using Microsoft.Extensions.Logging;
 using RewriteProxy.Embedding;
-using RewriteProxy.Hosting;
+using RewriteProxy.Lanes;
 using RewriteProxy.Telemetry;
 
 namespace RewriteProxy.Cache;

@@ -4,7 +4,6 @@ using System.Threading.Channels;
 using Dapper;
 using Microsoft.Data.Sqlite;
 using Microsoft.Extensions.Logging;
-using RewriteProxy.Hosting;
 
 namespace RewriteProxy.Cache;
 

@@ -4,7 +4,6 @@ using System.Diagnostics;
 using System.Numerics.Tensors;
 using Microsoft.Extensions.Logging;
 using Microsoft.ML.OnnxRuntime;
-using RewriteProxy.Hosting;
 using RewriteProxy.Telemetry;
 using SessionOptions = Microsoft.ML.OnnxRuntime.SessionOptions;
 

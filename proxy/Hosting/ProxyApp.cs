@@ -8,7 +8,6 @@ using Microsoft.Extensions.DependencyInjection;
 using Microsoft.Extensions.Logging;
 using Prometheus;
 using RewriteProxy.Cache;
-using RewriteProxy.Cli;
 using RewriteProxy.Embedding;
 using RewriteProxy.Forwarding;
 using RewriteProxy.Lanes;

@@ -6,7 +6,6 @@ using Microsoft.Extensions.Logging;
 using RewriteProxy.Cache;
 using RewriteProxy.Forwarding;
 using RewriteProxy.Guard;
-using RewriteProxy.Hosting;
 using RewriteProxy.Telemetry;
 using RewriteProxy.Wire;
 

@@ -2,7 +2,6 @@ using System.Diagnostics;
 using System.Net.Http.Headers;
 using Microsoft.AspNetCore.Http;
 using RewriteProxy.Forwarding;
-using RewriteProxy.Hosting;
 using RewriteProxy.Telemetry;
 
 namespace RewriteProxy.Lanes;

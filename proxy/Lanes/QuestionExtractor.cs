@@ -2,7 +2,6 @@ using System.Text;
 using System.Text.Json;
 using System.Text.Json.Nodes;
 using System.Text.RegularExpressions;
-using RewriteProxy.Hosting;
 using RewriteProxy.Wire;
 
 namespace RewriteProxy.Lanes;

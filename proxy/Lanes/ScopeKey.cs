@@ -2,7 +2,6 @@ using System.Security.Cryptography;
 using System.Text;
 using System.Text.Json;
 using System.Text.Json.Nodes;
-using RewriteProxy.Hosting;
 using RewriteProxy.Wire;
 
 namespace RewriteProxy.Lanes;

@@ -17,7 +17,7 @@ public static class ProxyMetrics
     /// Creates every known series at zero, so the first scrape already has them: a counter that first appears
     /// with a non-zero value loses that first increase in <c>rate()</c>, and dashboards show gaps.
     /// </summary>
-    public static void Declare(IEnumerable<RewriteProxy.Hosting.LaneOptions> lanes)
+    public static void Declare(IEnumerable<Lanes.LaneOptions> lanes)
     {
         foreach (var lane in lanes)
         {

@@ -1,3 +1,4 @@
+using RewriteProxy.Lanes;
 using System.Globalization;
 using System.Text;
 using RewriteProxy.Guard;

@@ -1,3 +1,4 @@
+using RewriteProxy.Lanes;
 using RewriteProxy.Guard;
 using RewriteProxy.Hosting;
 

@@ -4,28 +4,33 @@ using System.Text.RegularExpressions;
 
 namespace RewriteProxy.Cache;
 
-/// <summary>Why the anchor guard refused a semantic candidate: a fixed list, used as a metric label value.</summary>
-public static class AnchorReason
+/// <summary>
+/// Why the anchor guard refused a semantic candidate, in the order the guard checks; the <c>reason</c> label of
+/// <c>rewriteproxy_guard_rejections_total</c>.
+/// </summary>
+public enum AnchorReason
 {
-    public const string Number = "number";
-    public const string Unit = "unit";
-    public const string Negation = "negation";
-    public const string Identifier = "identifier";
-    public const string Contrast = "contrast";
-
-    /// <summary>Every reason, in the order the guard checks them.</summary>
-    public static readonly IReadOnlyList<string> All = [Negation, Number, Unit, Identifier, Contrast];
+    /// <summary>One question negates what the other does not.</summary>
+    Negation,
+    /// <summary>Numbers differ (years, amounts, versions, ordinals, written-out numbers).</summary>
+    Number,
+    /// <summary>Units or currencies differ, or a number carries another unit.</summary>
+    Unit,
+    /// <summary>A code, name, acronym or quoted string is in one question only.</summary>
+    Identifier,
+    /// <summary>A word in one question has its antonym in the other.</summary>
+    Contrast,
 }
 
 /// <summary>
 /// Outcome of comparing two questions' anchors. <see cref="Reason"/> is one of <see cref="AnchorReason"/> when
 /// <see cref="Agree"/> is false; <see cref="Detail"/> says what differed, for the event log (never a metric label).
 /// </summary>
-public readonly record struct AnchorVerdict(bool Agree, string? Reason, string? Detail)
+public readonly record struct AnchorVerdict(bool Agree, AnchorReason? Reason, string? Detail)
 {
     public static AnchorVerdict Agreed { get; } = new(true, null, null);
 
-    public static AnchorVerdict Refused(string reason, string detail) => new(false, reason, detail);
+    public static AnchorVerdict Refused(AnchorReason reason, string detail) => new(false, reason, detail);
 }
 
 /// <summary>
@@ -58,7 +63,7 @@ public sealed partial class AnchorGuard
 
     internal AnchorGuard(AnchorAntonyms antonyms) => _antonyms = antonyms;
 
-    /// <summary>Compares two questions' anchors; the first difference found decides the reason, in <see cref="AnchorReason.All"/> order.</summary>
+    /// <summary>Compares two questions' anchors; the first difference found decides the reason, in <see cref="AnchorReason"/> order.</summary>
     public AnchorVerdict Compare(Anchors asked, Anchors cached)
     {
         if (asked.Negations != cached.Negations)

@@ -12,12 +12,6 @@ public enum LookupKind { HitExact, HitSemantic, Miss }
 /// <summary>A lookup's result: the entry served on a hit, and the question vector (when one was computed) for the miss path.</summary>
 public sealed record LookupResult(LookupKind Kind, StoredEntry? Entry, double? Similarity, float[]? QuestionVector);
 
-/// <summary>The cache side failed; the caller fails open. <see cref="Reason"/> is a metric label: store | index | embedder.</summary>
-public sealed class CacheFailure(string reason, string message, Exception? inner = null) : Exception(message, inner)
-{
-    public string Reason { get; } = reason;
-}
-
 /// <summary>
 /// Exact lookup (normalised text, no embedding), then semantic lookup (nearest questions of the scope in the vector
 /// index, each checked by the anchor guard), over the store. Keeps the index in step with the store.
@@ -104,7 +98,7 @@ public sealed class SemanticCache
         }
         catch (StoreException e)
         {
-            throw new CacheFailure("store", e.Message, e);
+            throw new CacheFailure(FailOpenReason.Store, e.Message, e);
         }
         if (exact is not null) return new LookupResult(LookupKind.HitExact, exact, null, null);
 
@@ -116,7 +110,7 @@ public sealed class SemanticCache
         }
         catch (Exception e) when (e is not OutOfMemoryException)
         {
-            throw new CacheFailure("index", e.Message, e);
+            throw new CacheFailure(FailOpenReason.Index, e.Message, e);
         }
         if (near.Count == 0) return new LookupResult(LookupKind.Miss, null, null, vector);
 
@@ -130,16 +124,17 @@ public sealed class SemanticCache
             }
             catch (StoreException e)
             {
-                throw new CacheFailure("store", e.Message, e);
+                throw new CacheFailure(FailOpenReason.Store, e.Message, e);
             }
             if (entry is null) continue;
             var verdict = _guard.Compare(asked, _guard.Extract(entry.Question));
             if (verdict.Agree) return new LookupResult(LookupKind.HitSemantic, entry, similarity, vector);
 
-            ProxyMetrics.GuardRejections.WithLabels(lane.Name, verdict.Reason!).Inc();
-            _store.Count(lane.Name, Tally.Refused(verdict.Reason!));
+            var reason = LabelValue.Of(verdict.Reason!.Value);
+            ProxyMetrics.GuardRejections.WithLabels(lane.Name, reason).Inc();
+            _store.Count(lane.Name, Tally.Refused(reason));
             _store.AppendEvent(new EventRow(DateTimeOffset.UtcNow, lane.Name, partition, "guard", question, entry.Question, similarity,
-                "refused", verdict.Reason));
+                "refused", reason));
         }
         return new LookupResult(LookupKind.Miss, null, null, vector);
     }
@@ -154,7 +149,7 @@ public sealed class SemanticCache
         }
         catch (Exception e) when (e is not OutOfMemoryException)
         {
-            throw new CacheFailure("embedder", e.Message, e);
+            throw new CacheFailure(FailOpenReason.Embedder, e.Message, e);
         }
     }
 
@@ -171,7 +166,7 @@ public sealed class SemanticCache
         }
         catch (StoreException e)
         {
-            throw new CacheFailure("store", e.Message, e);
+            throw new CacheFailure(FailOpenReason.Store, e.Message, e);
         }
         if (entry.Vector is not null && entry.ModelId == _embedder.ModelId)
         {

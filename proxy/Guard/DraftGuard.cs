@@ -28,7 +28,7 @@ public static class DraftGuard
         var drift = 1 - SiblingGuard.Cosine(question, draft);
         return drift <= lane.MaxDrift
             ? new JudgedRewrite(draftText, drift, true, null)
-            : new JudgedRewrite(draftText, drift, false, "drift");
+            : new JudgedRewrite(draftText, drift, false, DropReason.Drift);
     }
 
     /// <summary>What to do with a judged draft.</summary>

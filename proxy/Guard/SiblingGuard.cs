@@ -76,8 +76,8 @@ public static class SiblingGuard
         for (var i = 0; i < candidates.Count; i++)
         {
             drift[i] = 1 - Cosine(question, vectors[i]);
-            if (drift[i] > lane.MaxDrift) dropped.Add(new(candidates[i], drift[i], false, "drift"));
-            else if (drift[i] < lane.MinSpread) dropped.Add(new(candidates[i], drift[i], false, "echo"));
+            if (drift[i] > lane.MaxDrift) dropped.Add(new(candidates[i], drift[i], false, DropReason.Drift));
+            else if (drift[i] < lane.MinSpread) dropped.Add(new(candidates[i], drift[i], false, DropReason.Echo));
             else pool.Add(i);
         }
 
@@ -99,9 +99,9 @@ public static class SiblingGuard
             pool.Remove(best);
 
             if (kept.Count > 0 && 1 - nearestKept[best] < lane.MinSpread)
-                dropped.Add(new(candidates[best], drift[best], false, "duplicate"));
+                dropped.Add(new(candidates[best], drift[best], false, DropReason.Duplicate));
             else if (kept.Count >= lane.MaxSiblings)
-                dropped.Add(new(candidates[best], drift[best], false, "surplus"));
+                dropped.Add(new(candidates[best], drift[best], false, DropReason.Surplus));
             else
             {
                 kept.Add(best);

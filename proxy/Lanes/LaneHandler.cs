@@ -73,7 +73,7 @@ public sealed class LaneHandler(
         var extraction = QuestionExtractor.Extract(request, lane);
         if (extraction.Site is not { } site)
         {
-            context.Response.Headers[Header.Bypass] = extraction.BypassReason;
+            context.Response.Headers[Header.Bypass] = LabelValue.Of(extraction.BypassReason!.Value);
             await BypassAsync(context, lane, body);
             return;
         }
@@ -126,9 +126,9 @@ public sealed class LaneHandler(
             return;
         }
         if (joined) ProxyMetrics.Coalesced.WithLabels(lane.Name).Inc();
-        var result = directives.NoStore ? "bypass" : "miss";
+        var result = directives.NoStore ? CacheResult.Bypass : CacheResult.Miss;
         tally.Lookup(lane.Name, result);
-        context.Response.Headers[Header.Cache] = result;
+        context.Response.Headers[Header.Cache] = directives.NoStore ? "bypass" : "miss";
         await WriteOutcomeAsync(context, request, outcome);
     }
 
@@ -178,7 +178,7 @@ public sealed class LaneHandler(
     /// <summary>Forwards the call untouched, uncached (a bypass, or a fail-open).</summary>
     async Task BypassAsync(HttpContext context, LaneOptions lane, byte[] body)
     {
-        tally.Lookup(lane.Name, "bypass");
+        tally.Lookup(lane.Name, CacheResult.Bypass);
         context.Response.Headers[Header.Cache] = "bypass";
         context.Request.Headers.Remove(Header.Lane);
         context.Request.Body = new MemoryStream(body, writable: false);
@@ -191,8 +191,7 @@ public sealed class LaneHandler(
         var entry = found.Entry!;
         var scores = ReadScores(entry.Scores);
         var semantic = found.Kind == LookupKind.HitSemantic;
-        var label = semantic ? "hit_semantic" : "hit_exact";
-        tally.Lookup(lane.Name, label);
+        tally.Lookup(lane.Name, semantic ? CacheResult.HitSemantic : CacheResult.HitExact);
         var saved = entry.PromptTokens + entry.CompletionTokens;
         tally.Saved(lane.Name, saved);
         if (semantic) ProxyMetrics.HitSimilarity.WithLabels(lane.Name).Observe(found.Similarity!.Value);
@@ -333,9 +332,9 @@ public sealed class LaneHandler(
         {
             var verdict = j.Accepted ? "accepted" : "dropped";
             ProxyMetrics.Drift.WithLabels(lane, verdict).Observe(j.Drift);
-            if (!j.Accepted) tally.Dropped(lane, j.Reason ?? "drift");
+            if (!j.Accepted) tally.Dropped(lane, j.Reason ?? DropReason.Drift);
             cache.Store.AppendEvent(new EventRow(DateTimeOffset.UtcNow, lane, miss.Partition, "rewrite", miss.Site.Question, j.Text,
-                j.Drift, verdict, j.Reason));
+                j.Drift, verdict, j.Reason is { } reason ? LabelValue.Of(reason) : null));
         }
     }
 

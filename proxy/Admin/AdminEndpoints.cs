@@ -54,9 +54,10 @@ public static class AdminEndpoints
                     partition = e.PartitionHash,
                     question = e.Question,
                     content = e.Content,
-                    scores = JsonDocument.Parse(e.Scores).RootElement,
-                    created = DateTimeOffset.FromUnixTimeMilliseconds(e.Created),
-                    lastHit = DateTimeOffset.FromUnixTimeMilliseconds(e.LastHit),
+                    // Spelled as the store writes them (MaxDrift, Dropped, Drifts), as this listing always has.
+                    scores = JsonSerializer.SerializeToElement(e.Scores),
+                    created = e.Created,
+                    lastHit = e.LastHit,
                     hitCount = e.HitCount,
                 }),
             });

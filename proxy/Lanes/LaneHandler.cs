@@ -189,7 +189,7 @@ public sealed class LaneHandler(
     async Task WriteHitAsync(HttpContext context, LaneOptions lane, ChatRequest request, LookupResult found)
     {
         var entry = found.Entry!;
-        var scores = ReadScores(entry.Scores);
+        var scores = entry.Scores;
         var semantic = found.Kind == LookupKind.HitSemantic;
         tally.Lookup(lane.Name, semantic ? CacheResult.HitSemantic : CacheResult.HitExact);
         var saved = entry.PromptTokens + entry.CompletionTokens;
@@ -206,18 +206,6 @@ public sealed class LaneHandler(
         var completion = CompletionWriter.FromEntry(entry.ResponseModel ?? request.Model, entry.Content,
             (int)entry.PromptTokens, (int)entry.CompletionTokens);
         await CompletionWriter.WriteAsync(context, completion, request.Stream, request.IncludeUsage);
-    }
-
-    static EntryScores ReadScores(string json)
-    {
-        try
-        {
-            return JsonSerializer.Deserialize<EntryScores>(json) ?? new EntryScores(null, 0, []);
-        }
-        catch (JsonException)
-        {
-            return new EntryScores(null, 0, []);
-        }
     }
 
     static string Format(double value) => value.ToString("0.0000", CultureInfo.InvariantCulture);

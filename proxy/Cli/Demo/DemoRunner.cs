@@ -181,11 +181,11 @@ public static class DemoRunner
         await response.Content.ReadAsByteArrayAsync(cancel);
         var ms = Stopwatch.GetElapsedTime(start).TotalMilliseconds;
         return new DemoObservation(call, (int)response.StatusCode,
-            Header(response, LaneHandler.Header.Cache) ?? "",
-            Header(response, LaneHandler.Header.Similarity) is { } s ? double.Parse(s, CultureInfo.InvariantCulture) : null,
-            Header(response, LaneHandler.Header.Dropped) is { } d ? int.Parse(d, CultureInfo.InvariantCulture) : 0,
-            Header(response, LaneHandler.Header.SavedTokens) is { } t ? long.Parse(t, CultureInfo.InvariantCulture) : 0,
-            Header(response, LaneHandler.Header.Fallback) is not null,
+            Header(response, RewriteHeaders.Cache) ?? "",
+            Header(response, RewriteHeaders.Similarity) is { } s ? double.Parse(s, CultureInfo.InvariantCulture) : null,
+            Header(response, RewriteHeaders.Dropped) is { } d ? int.Parse(d, CultureInfo.InvariantCulture) : 0,
+            Header(response, RewriteHeaders.SavedTokens) is { } t ? long.Parse(t, CultureInfo.InvariantCulture) : 0,
+            Header(response, RewriteHeaders.Fallback) is not null,
             ms);
     }
 

@@ -12,7 +12,7 @@ namespace RewriteProxy.Tests.Clients;
 public sealed class AzureClientTests : UpstreamAndProxy
 {
     const string Question = "Which documents prove a change of address?";
-    const string Paraphrase = "Which documents prove a change of address";
+    const string Paraphrase = "Which documents can prove a change of address?";
     const string ApiVersion = "2024-10-21";
 
     static string Draft(string question) => "A draft answer: " + question.TrimEnd('?') + ", such as a utility bill or a lease.";

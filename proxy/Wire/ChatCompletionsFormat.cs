@@ -2,17 +2,19 @@ using System.Text.Json;
 using System.Text.Json.Nodes;
 using Microsoft.AspNetCore.Http;
 
-namespace RewriteProxy.Wire.Chat;
+namespace RewriteProxy.Wire;
 
 /// <summary>
 /// OpenAI chat completions (<c>POST /v1/chat/completions</c>, also Azure OpenAI's deployment path) as a lane format:
 /// the messages are the view as they are.
 /// </summary>
-public sealed class ChatFormat : IWireFormat
+public sealed class ChatCompletionsFormat : IWireFormat
 {
-    public static readonly ChatFormat Instance = new();
+    public static readonly ChatCompletionsFormat Instance = new();
 
     public string Name => "chat";
+
+    public IReadOnlyList<string> ScopeHeaders { get; } = [];
 
     /// <summary>
     /// Fields known not to change the completion's text. Every other field (temperature, top_p, max_tokens, seed, stop,
@@ -23,7 +25,11 @@ public sealed class ChatFormat : IWireFormat
         ["messages", "model", "stream", "stream_options", "user", "metadata", "store", "service_tier", "prompt_cache_key", "safety_identifier"];
 
     /// <summary>Request fields that make an answer depend on more than the messages' text.</summary>
-    static readonly string[] ToolFields = ["tools", "functions", "tool_choice", "function_call"];
+    static readonly (string Field, BypassReason Reason)[] UncacheableFields =
+    [
+        ("tools", BypassReason.Tools), ("functions", BypassReason.Tools), ("tool_choice", BypassReason.Tools),
+        ("function_call", BypassReason.Tools), ("audio", BypassReason.Audio), ("prediction", BypassReason.Prediction),
+    ];
 
     public LaneRequest Read(ReadOnlySpan<byte> utf8, string? pathModel)
     {
@@ -41,17 +47,15 @@ public sealed class ChatFormat : IWireFormat
         };
     }
 
-    static string? Bypass(ChatRequest chat)
+    static BypassReason? Bypass(ChatRequest chat)
     {
         var body = chat.Body;
-        foreach (var field in ToolFields)
-            if (body[field] is { } value && value.GetValueKind() != JsonValueKind.Null) return BypassReason.Tools;
-        if (WireJson.IsSet(body["audio"])) return BypassReason.Media;
-        if (WireJson.IsSet(body["prediction"])) return BypassReason.Prediction;
+        foreach (var (field, reason) in UncacheableFields)
+            if (body[field] is { } value && value.GetValueKind() != JsonValueKind.Null) return reason;
         if (body["n"] is JsonValue n && n.GetValueKind() == JsonValueKind.Number && (!n.TryGetValue<int>(out var count) || count != 1))
-            return BypassReason.Choices;
+            return BypassReason.N;
         if (body["logprobs"] is JsonValue lp && lp.GetValueKind() == JsonValueKind.True) return BypassReason.Logprobs;
-        if (body["modalities"] is JsonArray modalities && modalities.Any(m => m?.ToString() != "text")) return BypassReason.Media;
+        if (body["modalities"] is JsonArray modalities && modalities.Any(m => m?.ToString() != "text")) return BypassReason.Modalities;
         foreach (var node in chat.Messages)
         {
             var message = (JsonObject)node!;

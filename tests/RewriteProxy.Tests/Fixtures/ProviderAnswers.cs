@@ -15,9 +15,15 @@ public static class ProviderAnswers
 {
     public static Func<HttpContext, RecordedRequest, Task> Handler(Func<string, string> text) => async (context, recorded) =>
     {
-        var body = recorded.Json!.AsObject();
+        var body = recorded.Body.Length == 0 ? [] : recorded.Json!.AsObject();
         var stream = body["stream"]?.GetValue<bool>() == true;
-        if (recorded.Path.EndsWith("/responses", StringComparison.Ordinal))
+        if (recorded.Body.Length == 0)
+        {
+            context.Response.Headers["X-Upstream-Path"] = recorded.Path;
+            context.Response.ContentType = "application/json";
+            await context.Response.WriteAsync("{\"object\":\"list\",\"data\":[]}");
+        }
+        else if (recorded.Path.EndsWith("/responses", StringComparison.Ordinal))
         {
             var request = ResponsesFormat.Instance.Read(recorded.Body, null);
             var answer = ResponsesFormat.Instance.FromEntry(request, request.Model, text(LastUserText(request)), 25, 30);

@@ -47,6 +47,16 @@ public sealed class LabelValueTests
     }
 
     [Fact]
+    public void Readme_header_table_lists_exactly_the_bypass_reasons()
+    {
+        var readme = File.ReadAllText(RepositoryRoot.File("README.md"));
+        var row = Regex.Match(readme, @"^\| `X-Rewrite-Bypass` \| (?<text>[^|]+) \|", RegexOptions.Multiline);
+        Assert.True(row.Success, "README has no row for X-Rewrite-Bypass");
+        var listed = Regex.Matches(row.Groups["text"].Value, "`(?<v>[a-z_]+)`").Select(m => m.Groups["v"].Value);
+        Assert.Equal(LabelValue.All<BypassReason>().Order(), listed.Order());
+    }
+
+    [Fact]
     public void Prometheus_rules_and_their_tests_use_only_values_the_proxy_produces()
     {
         var folder = RepositoryRoot.File("config", "prometheus");

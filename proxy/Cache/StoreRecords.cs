@@ -20,27 +20,32 @@ public sealed record NewEntry(
 /// <param name="MaxDrift">Largest drift among the accepted rewrites; null when nothing was scored.</param>
 /// <param name="Dropped">How many rewrites the guard dropped on the miss.</param>
 /// <param name="Drifts">Drift of each accepted line (siblings) or of the draft, in order.</param>
-public sealed record EntryScores(double? MaxDrift, int Dropped, double[] Drifts);
-
-/// <summary>One stored entry as read back (the vector stays in the index).</summary>
-public sealed record StoredEntry
+public sealed record EntryScores(double? MaxDrift, int Dropped, double[] Drifts)
 {
-    public long Id { get; init; }
-    public string ScopeKey { get; init; } = "";
-    public string PartitionHash { get; init; } = "";
-    public string Lane { get; init; } = "";
-    public string Question { get; init; } = "";
-    public string Normalized { get; init; } = "";
-    public string Content { get; init; } = "";
-    public string Scores { get; init; } = "{}";
-    public string? ResponseModel { get; init; }
-    public string? ModelId { get; init; }
-    public long PromptTokens { get; init; }
-    public long CompletionTokens { get; init; }
-    public long Created { get; init; }
-    public long LastHit { get; init; }
-    public long HitCount { get; init; }
+    /// <summary>What an entry whose scores cannot be read reports: nothing scored, nothing dropped.</summary>
+    public static EntryScores None { get; } = new(null, 0, []);
 }
+
+/// <summary>One stored entry as read back (the vector stays in the index), decoded once by the store.</summary>
+/// <param name="Scores">The drift scores the miss reported, so a hit reports the same.</param>
+/// <param name="Created">When the entry was stored; it is served until <c>Store:Ttl</c> after this.</param>
+/// <param name="LastHit">When it was last served (its creation time until then); eviction takes the oldest first.</param>
+public sealed record StoredEntry(
+    long Id,
+    string ScopeKey,
+    string PartitionHash,
+    string Lane,
+    string Question,
+    string Normalized,
+    string Content,
+    EntryScores Scores,
+    string? ResponseModel,
+    string? ModelId,
+    long PromptTokens,
+    long CompletionTokens,
+    DateTimeOffset Created,
+    DateTimeOffset LastHit,
+    long HitCount);
 
 /// <summary>A row the vector index is rebuilt from.</summary>
 public sealed record IndexRow(long Id, string ScopeKey, float[] Vector);

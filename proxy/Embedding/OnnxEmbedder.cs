@@ -4,7 +4,6 @@ using System.Diagnostics;
 using System.Numerics.Tensors;
 using Microsoft.Extensions.Logging;
 using Microsoft.ML.OnnxRuntime;
-using RewriteProxy.Hosting;
 using RewriteProxy.Telemetry;
 using SessionOptions = Microsoft.ML.OnnxRuntime.SessionOptions;
 
@@ -19,10 +18,10 @@ public sealed class OnnxEmbedder : IEmbedder, IDisposable
     /// <summary>Pooling of token states into one vector; part of <see cref="ModelId"/>.</summary>
     internal const string PoolingName = "mean";
 
-    const string InputIds = "input_ids";
-    const string AttentionMask = "attention_mask";
-    const string TokenTypeIds = "token_type_ids";
-    const string HiddenState = "last_hidden_state";
+    internal const string InputIds = "input_ids";
+    internal const string AttentionMask = "attention_mask";
+    internal const string TokenTypeIds = "token_type_ids";
+    internal const string HiddenState = "last_hidden_state";
 
     /// <summary>Guards the division of a vector by its length; the value sentence-transformers' normalize uses (from memory).</summary>
     const float NormFloor = 1e-12f;
@@ -97,7 +96,7 @@ public sealed class OnnxEmbedder : IEmbedder, IDisposable
         {
             for (int i = 0; i < sessionCount; i++)
                 sessions[i] = CreateSession(source, sessionOptions);
-            (string[] inputs, string output) = CheckShape(sessions[0], source.ModelName);
+            (string[] inputs, string output) = BertModelShape.Check(sessions[0], source.ModelName);
             var embedder = new OnnxEmbedder(encoder, sessionOptions, sessions, source.ModelId(PoolingName), inputs, output);
             embedder.Dimension = embedder.ProbeDimension(source.ModelName);
             logger?.LogInformation(
@@ -247,34 +246,6 @@ public sealed class OnnxEmbedder : IEmbedder, IDisposable
         {
             throw new EmbedderLoadException($"Embedding model '{source.ModelName}' is not a loadable ONNX model: {WordPieceEncoder.FirstLine(ex.Message)}", ex);
         }
-    }
-
-    /// <summary>The inputs to feed (in the model's order) and the output to pool, or why the model does not fit.</summary>
-    static (string[] Inputs, string Output) CheckShape(InferenceSession session, string modelName)
-    {
-        IReadOnlyDictionary<string, NodeMetadata> inputs = session.InputMetadata;
-        foreach (string required in (string[])[InputIds, AttentionMask])
-        {
-            if (!inputs.ContainsKey(required))
-                throw new EmbedderLoadException($"Embedding model '{modelName}' has no input '{required}' (it has {string.Join(", ", inputs.Keys)}); a BERT-family model is expected.");
-        }
-        foreach ((string name, NodeMetadata meta) in inputs)
-        {
-            if (name is not (InputIds or AttentionMask or TokenTypeIds))
-                throw new EmbedderLoadException($"Embedding model '{modelName}' needs input '{name}', which a BERT-family model does not have (expected {InputIds}, {AttentionMask}[, {TokenTypeIds}]).");
-            if (meta.ElementDataType != Microsoft.ML.OnnxRuntime.Tensors.TensorElementType.Int64 || meta.Dimensions.Length != 2)
-                throw new EmbedderLoadException($"Embedding model '{modelName}' input '{name}' is {meta.ElementDataType} of rank {meta.Dimensions.Length}; expected Int64 of rank 2 (batch, tokens).");
-        }
-
-        IReadOnlyDictionary<string, NodeMetadata> outputs = session.OutputMetadata;
-        if (outputs.Count == 0)
-            throw new EmbedderLoadException($"Embedding model '{modelName}' has no output.");
-        string output = outputs.ContainsKey(HiddenState) ? HiddenState : outputs.Keys.First();
-        NodeMetadata outputMeta = outputs[output];
-        if (outputMeta.ElementDataType != Microsoft.ML.OnnxRuntime.Tensors.TensorElementType.Float || outputMeta.Dimensions.Length != 3)
-            throw new EmbedderLoadException($"Embedding model '{modelName}' output '{output}' is {outputMeta.ElementDataType} of rank {outputMeta.Dimensions.Length}; expected Float of rank 3 (batch, tokens, hidden).");
-
-        return (inputs.Keys.ToArray(), output);
     }
 
     /// <summary>Runs the model once (warming it up) and returns the length of its vectors.</summary>

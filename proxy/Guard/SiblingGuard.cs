@@ -1,5 +1,4 @@
 using System.Numerics.Tensors;
-using RewriteProxy.Hosting;
 
 namespace RewriteProxy.Guard;
 
@@ -23,12 +22,12 @@ public sealed record SiblingJudgement(
 
 /// <summary>
 /// Judges the siblings of one question: drops those that drift from it, echo it, or duplicate each other,
-/// and keeps at most <see cref="LaneOptions.MaxSiblings"/>, chosen by Maximal Marginal Relevance.
+/// and keeps at most <see cref="IDriftLimits.MaxSiblings"/>, chosen by Maximal Marginal Relevance.
 /// </summary>
 /// <remarks>
 /// drift = 1 − cos(question, sibling); spread = 1 − cos(sibling, sibling). A candidate is dropped as
-/// <c>drift</c> when drift &gt; <see cref="LaneOptions.MaxDrift"/>, as <c>echo</c> when drift &lt;
-/// <see cref="LaneOptions.MinSpread"/> (it repeats the question, so it adds nothing to retrieval). The rest are
+/// <c>drift</c> when drift &gt; <see cref="IDriftLimits.MaxDrift"/>, as <c>echo</c> when drift &lt;
+/// <see cref="IDriftLimits.MinSpread"/> (it repeats the question, so it adds nothing to retrieval). The rest are
 /// picked one at a time by MMR (Carbonell &amp; Goldstein 1998):
 /// score(c) = λ·cos(q, c) − (1 − λ)·max over kept k of cos(c, k), the second term 0 while nothing is kept; ties go
 /// to the earlier line. A pick whose spread to a kept sibling is below MinSpread is dropped as <c>duplicate</c>;
@@ -57,7 +56,7 @@ public static class SiblingGuard
         IReadOnlyList<string> candidates,
         IReadOnlyList<float[]> vectors,
         string completion,
-        LaneOptions lane) => Judge(question, candidates, vectors, completion, lane, Relevance);
+        IDriftLimits lane) => Judge(question, candidates, vectors, completion, lane, Relevance);
 
     /// <summary>As the public overload, with λ given: for the measurement that chose <see cref="Relevance"/>.</summary>
     internal static SiblingJudgement Judge(
@@ -65,7 +64,7 @@ public static class SiblingGuard
         IReadOnlyList<string> candidates,
         IReadOnlyList<float[]> vectors,
         string completion,
-        LaneOptions lane,
+        IDriftLimits lane,
         double relevance)
     {
         if (candidates.Count != vectors.Count)
@@ -77,8 +76,8 @@ public static class SiblingGuard
         for (var i = 0; i < candidates.Count; i++)
         {
             drift[i] = 1 - Cosine(question, vectors[i]);
-            if (drift[i] > lane.MaxDrift) dropped.Add(new(candidates[i], drift[i], false, "drift"));
-            else if (drift[i] < lane.MinSpread) dropped.Add(new(candidates[i], drift[i], false, "echo"));
+            if (drift[i] > lane.MaxDrift) dropped.Add(new(candidates[i], drift[i], false, DropReason.Drift));
+            else if (drift[i] < lane.MinSpread) dropped.Add(new(candidates[i], drift[i], false, DropReason.Echo));
             else pool.Add(i);
         }
 
@@ -100,9 +99,9 @@ public static class SiblingGuard
             pool.Remove(best);
 
             if (kept.Count > 0 && 1 - nearestKept[best] < lane.MinSpread)
-                dropped.Add(new(candidates[best], drift[best], false, "duplicate"));
+                dropped.Add(new(candidates[best], drift[best], false, DropReason.Duplicate));
             else if (kept.Count >= lane.MaxSiblings)
-                dropped.Add(new(candidates[best], drift[best], false, "surplus"));
+                dropped.Add(new(candidates[best], drift[best], false, DropReason.Surplus));
             else
             {
                 kept.Add(best);

@@ -1,6 +1,5 @@
 using System.Text;
 using System.Text.RegularExpressions;
-using RewriteProxy.Hosting;
 
 namespace RewriteProxy.Guard;
 

@@ -4,7 +4,6 @@ using Microsoft.Extensions.Logging;
 using RewriteProxy.Cache;
 using RewriteProxy.Hosting;
 using RewriteProxy.Telemetry;
-using RewriteProxy.Wire;
 
 namespace RewriteProxy.Lanes;
 
@@ -70,17 +69,17 @@ public sealed class QuestionFinder(IRewriteStore store, RewriteProxyOptions opti
     /// The question of a call whose extraction found the last user message (<paramref name="site"/>): narrowed by a
     /// learned template or a marker, with the scope and exact key that follow from how sure the location is.
     /// </summary>
-    public LaneQuestion Resolve(LaneOptions lane, ChatRequest request, QuestionSite site, string partition)
+    /// <param name="scopeOf">The call's scope key with a given site as its question (ScopeKey.Compute over the call).</param>
+    public LaneQuestion Resolve(LaneOptions lane, QuestionSite site, string partition, Func<QuestionSite, string> scopeOf)
     {
         if (lane.QuestionPattern is not null)
         {
             Count(lane.Name, QuestionSource.Pattern);
-            return new LaneQuestion(site, QuestionSource.Pattern, true, ScopeKey.Compute(lane, request, site, partition),
-                QuestionText.Normalize(site.Question));
+            return new LaneQuestion(site, QuestionSource.Pattern, true, scopeOf(site), QuestionText.Normalize(site.Question));
         }
         var text = site.MessageText;
         var whole = new QuestionSite(text, site.MessageIndex, text, 0, text.Length);
-        var learningKey = ScopeKey.Compute(lane, request, whole, partition);
+        var learningKey = scopeOf(whole);
         var located = Locate(lane, text, learningKey, partition);
         var question = text.Substring(located.Start, located.Length);
         var found = new QuestionSite(question, site.MessageIndex, text, located.Start, located.Length);
@@ -91,8 +90,8 @@ public sealed class QuestionFinder(IRewriteStore store, RewriteProxyOptions opti
         // learning key); a templated one is scoped with its template around it.
         if (located.Source == QuestionSource.Message)
             return new LaneQuestion(site, located.Source, true, learningKey, QuestionText.Normalize(site.Question));
-        return new LaneQuestion(found, located.Source, true, ScopeKey.Compute(lane, request, found, partition),
-            QuestionText.Normalize(question), unlocatedScope, wholeNormalized);
+        return new LaneQuestion(found, located.Source, true, scopeOf(found), QuestionText.Normalize(question), unlocatedScope,
+            wholeNormalized);
     }
 
     /// <summary>The scope of unlocated calls: the learning key, marked so that no located call's scope can equal it.</summary>

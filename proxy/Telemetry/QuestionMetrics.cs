@@ -6,7 +6,7 @@ namespace RewriteProxy.Telemetry;
 public static class QuestionMetrics
 {
     /// <summary>Creates the series at zero for every lane (see <see cref="ProxyMetrics.Declare"/>).</summary>
-    public static void Declare(IEnumerable<RewriteProxy.Hosting.LaneOptions> lanes)
+    public static void Declare(IEnumerable<RewriteProxy.Lanes.LaneOptions> lanes)
     {
         foreach (var lane in lanes)
         {

@@ -27,8 +27,8 @@ public sealed class LaneRequest
     /// <summary>Chat completions only: <c>stream_options.include_usage</c>.</summary>
     public bool IncludeUsage { get; init; }
 
-    /// <summary>Why a cache cannot stand in for this call (a <see cref="BypassReason"/> value), or null.</summary>
-    public string? Bypass { get; init; }
+    /// <summary>Why a cache cannot stand in for this call, or null.</summary>
+    public BypassReason? Bypass { get; init; }
 }
 
 /// <summary>An upstream answer to a lane miss, read in the call's format.</summary>

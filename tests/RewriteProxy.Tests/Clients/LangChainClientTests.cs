@@ -56,7 +56,7 @@ public sealed class LangChainClientTests(LangChainClientTests.Rig rig, ITestOutp
             Upstream.Completion = ScriptedAnswers.Answer;
             // The shipped configuration file, then only what a test must change: where the upstream and the store are.
             var configuration = new ConfigurationBuilder()
-                .AddJsonFile(Path.Combine(PromTools.RepositoryRoot, "config", "rewriteproxy.json"))
+                .AddJsonFile(RepositoryRoot.File("config", "rewriteproxy.json"))
                 .AddInMemoryCollection(new Dictionary<string, string?>
                 {
                     ["Upstream:BaseUrl"] = Upstream.BaseUrl.ToString(),

@@ -10,7 +10,7 @@ namespace RewriteProxy.Tests.Fixtures;
 /// </summary>
 public static class NodeClients
 {
-    static string Folder => Path.Combine(PromTools.RepositoryRoot, "tests", "clients");
+    static string Folder => Path.Combine(RepositoryRoot.File("tests", "clients"));
 
     /// <summary>The package.json version of an installed package, to name beside a check.</summary>
     public static string VersionOf(string package) =>

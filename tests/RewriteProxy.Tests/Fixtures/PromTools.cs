@@ -24,20 +24,8 @@ public static class PromTools
 
     public static string PrometheusPath => Find("prometheus");
 
-    /// <summary>The folder holding RewriteProxy.sln, found by walking up from the test binaries.</summary>
-    public static string RepositoryRoot
-    {
-        get
-        {
-            for (var dir = new DirectoryInfo(AppContext.BaseDirectory); dir is not null; dir = dir.Parent)
-                if (File.Exists(Path.Combine(dir.FullName, "RewriteProxy.sln")))
-                    return dir.FullName;
-            throw new InvalidOperationException($"No RewriteProxy.sln above {AppContext.BaseDirectory}.");
-        }
-    }
-
     /// <summary>config/prometheus: the rule files, their promtool tests and the example scrape config.</summary>
-    public static string PrometheusConfigDirectory => Path.Combine(RepositoryRoot, "config", "prometheus");
+    public static string PrometheusConfigDirectory => RepositoryRoot.File("config", "prometheus");
 
     static string Find(string name)
     {

@@ -1,3 +1,4 @@
+using RewriteProxy.Lanes;
 using System.Globalization;
 using System.Text;
 using RewriteProxy.Guard;
@@ -76,7 +77,7 @@ public sealed class DriftDefaultsTests(ReferenceEncoder encoder, ITestOutputHelp
 
             var echoes = Echoes(label.Question);
             var echoJudgement = SiblingGuard.Judge(q, echoes, encoder.Encode(echoes), "", siblings);
-            echoesDropped += echoJudgement.Dropped.Count(d => d.Reason == "echo");
+            echoesDropped += echoJudgement.Dropped.Count(d => d.Reason == DropReason.Echo);
             echoTotal += echoes.Length;
         }
         output.WriteLine($"siblings on kept {onKept}/{onTotal}, off dropped {offDropped}/{offTotal}; drafts on kept {draftOnKept}/{draftOnTotal}, off dropped {draftOffDropped}/{draftOffTotal}; echoes dropped {echoesDropped}/{echoTotal}");

@@ -8,7 +8,7 @@ namespace RewriteProxy.Tests.Hardening;
 /// <summary>
 /// kill -9 of the real proxy process while lane misses are in flight. SQLite in WAL mode promises that a committed
 /// transaction survives an application crash and that an uncommitted one leaves no trace (sqlite.org/wal.html,
-/// sqlite.org/atomiccommit.html); the proxy answers a miss only after its entry committed (LaneHandler.CommitWait).
+/// sqlite.org/atomiccommit.html); the proxy answers a miss only after its entry committed (RewriteFlow.CommitWait).
 /// So after the crash: the file passes PRAGMA integrity_check, and every answer a client received is in the store,
 /// whole, with exactly the content the client saw.
 /// </summary>

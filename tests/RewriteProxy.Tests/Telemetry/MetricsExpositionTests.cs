@@ -1,3 +1,5 @@
+using RewriteProxy.Guard;
+using RewriteProxy.Telemetry;
 using System.Globalization;
 using System.Net;
 using System.Net.Sockets;
@@ -214,9 +216,9 @@ public sealed class MetricsExpositionTests(MetricsWorkloadFixture run, ITestOutp
             }
         var ourLanes = run.After.Samples.Where(s => s.Labels.TryGetValue("lane", out var l) && l is Draft or Siblings).ToList();
         Assert.All(ourLanes.Where(s => s.Name.StartsWith("rewriteproxy_guard_rejections", StringComparison.Ordinal)),
-            s => Assert.Contains(s.Labels["reason"], AnchorReason.All));
+            s => Assert.Contains(s.Labels["reason"], LabelValue.All<AnchorReason>()));
         Assert.All(ourLanes.Where(s => s.Name.StartsWith("rewriteproxy_dropped", StringComparison.Ordinal)),
-            s => Assert.Contains(s.Labels["reason"], new[] { "drift", "echo", "duplicate", "surplus", "policy" }));
+            s => Assert.Contains(s.Labels["reason"], LabelValue.All<DropReason>()));
     }
 
     [Fact]

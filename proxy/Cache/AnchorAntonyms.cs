@@ -52,10 +52,10 @@ internal sealed class AnchorAntonyms
 
     readonly record struct Entry(string[] Antonyms, Pos Pos);
 
-    static readonly Lazy<AnchorAntonyms> s_default = new(LoadEmbedded, LazyThreadSafetyMode.ExecutionAndPublication);
+    static readonly Lazy<AnchorAntonyms> Embedded = new(LoadEmbedded, LazyThreadSafetyMode.ExecutionAndPublication);
 
     /// <summary>The embedded WordNet table with the ignore list and supplement applied.</summary>
-    public static AnchorAntonyms Default => s_default.Value;
+    public static AnchorAntonyms Default => Embedded.Value;
 
     readonly FrozenDictionary<string, Entry> _entries;
 

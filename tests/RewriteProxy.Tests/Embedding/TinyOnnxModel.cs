@@ -101,7 +101,7 @@ internal static class TinyOnnxModel
     /// <summary>Protocol Buffers wire format: varint (type 0) and length-delimited (type 2) fields only.</summary>
     sealed class Proto
     {
-        readonly MemoryStream bytes = new();
+        readonly MemoryStream _bytes = new();
 
         public Proto Varint(int field, ulong value)
         {
@@ -114,22 +114,22 @@ internal static class TinyOnnxModel
         {
             Raw((ulong)(field << 3 | 2));
             Raw((ulong)value.Length);
-            bytes.Write(value);
+            _bytes.Write(value);
             return this;
         }
 
         public Proto Text(int field, string value) => Bytes(field, Encoding.UTF8.GetBytes(value));
 
-        public byte[] ToArray() => bytes.ToArray();
+        public byte[] ToArray() => _bytes.ToArray();
 
         void Raw(ulong value)
         {
             while (value >= 0x80)
             {
-                bytes.WriteByte((byte)(value | 0x80));
+                _bytes.WriteByte((byte)(value | 0x80));
                 value >>= 7;
             }
-            bytes.WriteByte((byte)value);
+            _bytes.WriteByte((byte)value);
         }
     }
 }

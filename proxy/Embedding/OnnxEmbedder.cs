@@ -67,7 +67,7 @@ public sealed class OnnxEmbedder : IEmbedder, IDisposable
 
     /// <summary>
     /// Sessions kept by <see cref="Load(EmbeddingOptions, ILogger?)"/>, the threads split between them. Measured on 2 cores
-    /// with 4 concurrent callers (DEVELOPERS.md ("Embedding engine")): two sessions of one thread served a question in 10.9 ms, one
+    /// with 4 concurrent callers (docs/measurements/embedding.md): two sessions of one thread served a question in 10.9 ms, one
     /// shared session of two threads in 16.2 ms. Costs one more copy of the model's weights in memory.
     /// </summary>
     internal const int DefaultSessions = 2;

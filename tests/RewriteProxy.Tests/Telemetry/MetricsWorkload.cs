@@ -162,7 +162,7 @@ public sealed class MetricsWorkload
         [$"Lanes:{siblingsLane}:MaxDrift"] = SiblingsMaxDrift.ToString(CultureInfo.InvariantCulture),
     };
 
-    /// <summary>The project's measured defaults (DEVELOPERS.md ("Drift guard and defaults")), set explicitly so the gauge's expected value is known here.</summary>
+    /// <summary>The project's measured defaults (docs/measurements/drift-defaults.md), set explicitly so the gauge's expected value is known here.</summary>
     public const double DraftMaxDrift = 0.50;
     public const double SiblingsMaxDrift = 0.65;
 

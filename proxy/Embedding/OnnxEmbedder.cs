@@ -26,28 +26,28 @@ public sealed class OnnxEmbedder : IEmbedder, IDisposable
     /// <summary>Guards the division of a vector by its length; the value sentence-transformers' normalize uses (from memory).</summary>
     const float NormFloor = 1e-12f;
 
-    readonly WordPieceEncoder encoder;
-    readonly SessionOptions sessionOptions;
-    readonly InferenceSession[] sessions;
-    readonly ConcurrentBag<InferenceSession> idle;
-    readonly SemaphoreSlim? turns;
-    readonly RunOptions runOptions = new();
-    readonly string[] inputNames;
-    readonly string[] outputNames;
-    readonly bool feedsTokenTypes;
+    readonly WordPieceEncoder _encoder;
+    readonly SessionOptions _sessionOptions;
+    readonly InferenceSession[] _sessions;
+    readonly ConcurrentBag<InferenceSession> _idle;
+    readonly SemaphoreSlim? _turns;
+    readonly RunOptions _runOptions = new();
+    readonly string[] _inputNames;
+    readonly string[] _outputNames;
+    readonly bool _feedsTokenTypes;
 
     OnnxEmbedder(WordPieceEncoder encoder, SessionOptions sessionOptions, InferenceSession[] sessions, string modelId,
         string[] inputNames, string outputName)
     {
-        this.encoder = encoder;
-        this.sessionOptions = sessionOptions;
-        this.sessions = sessions;
-        idle = new ConcurrentBag<InferenceSession>(sessions);
-        turns = sessions.Length > 1 ? new SemaphoreSlim(sessions.Length, sessions.Length) : null;
+        _encoder = encoder;
+        _sessionOptions = sessionOptions;
+        _sessions = sessions;
+        _idle = new ConcurrentBag<InferenceSession>(sessions);
+        _turns = sessions.Length > 1 ? new SemaphoreSlim(sessions.Length, sessions.Length) : null;
         ModelId = modelId;
-        this.inputNames = inputNames;
-        outputNames = [outputName];
-        feedsTokenTypes = inputNames.Contains(TokenTypeIds);
+        _inputNames = inputNames;
+        _outputNames = [outputName];
+        _feedsTokenTypes = inputNames.Contains(TokenTypeIds);
     }
 
     public string ModelId { get; }
@@ -55,7 +55,7 @@ public sealed class OnnxEmbedder : IEmbedder, IDisposable
     public int Dimension { get; private set; }
 
     /// <summary>Word pieces per text, [CLS] and [SEP] included.</summary>
-    public int MaxTokens => encoder.MaxTokens;
+    public int MaxTokens => _encoder.MaxTokens;
 
     /// <summary>
     /// Loads the model named by <paramref name="options"/> (or the packaged all-MiniLM-L6-v2), checks that it fits,
@@ -67,7 +67,7 @@ public sealed class OnnxEmbedder : IEmbedder, IDisposable
 
     /// <summary>
     /// Sessions kept by <see cref="Load(EmbeddingOptions, ILogger?)"/>, the threads split between them. Measured on 2 cores
-    /// with 4 concurrent callers (DEVELOPERS.md ("Embedding engine")): two sessions of one thread served a question in 10.9 ms, one
+    /// with 4 concurrent callers (docs/measurements/embedding.md): two sessions of one thread served a question in 10.9 ms, one
     /// shared session of two threads in 16.2 ms. Costs one more copy of the model's weights in memory.
     /// </summary>
     internal const int DefaultSessions = 2;
@@ -124,7 +124,7 @@ public sealed class OnnxEmbedder : IEmbedder, IDisposable
         int rows = 0, longest = 0;
         for (int i = 0; i < texts.Count; i++)
         {
-            pieces[i] = encoder.Encode(texts[i] ?? "");
+            pieces[i] = _encoder.Encode(texts[i] ?? "");
             if (pieces[i] is { } ids)
             {
                 rows++;
@@ -146,10 +146,10 @@ public sealed class OnnxEmbedder : IEmbedder, IDisposable
         int cells = rows * longest;
         long[] ids = ArrayPool<long>.Shared.Rent(cells);
         long[] mask = ArrayPool<long>.Shared.Rent(cells);
-        long[]? types = feedsTokenTypes ? ArrayPool<long>.Shared.Rent(cells) : null;
+        long[]? types = _feedsTokenTypes ? ArrayPool<long>.Shared.Rent(cells) : null;
         try
         {
-            long padding = encoder.PaddingId;
+            long padding = _encoder.PaddingId;
             int row = 0;
             foreach (IReadOnlyList<int>? textPieces in pieces)
             {
@@ -168,10 +168,10 @@ public sealed class OnnxEmbedder : IEmbedder, IDisposable
             types?.AsSpan(0, cells).Clear();
 
             long[] shape = [rows, longest];
-            using var inputs = new InputValues(inputNames.Length);
-            for (int i = 0; i < inputNames.Length; i++)
+            using var inputs = new InputValues(_inputNames.Length);
+            for (int i = 0; i < _inputNames.Length; i++)
             {
-                long[] data = inputNames[i] switch { InputIds => ids, AttentionMask => mask, _ => types! };
+                long[] data = _inputNames[i] switch { InputIds => ids, AttentionMask => mask, _ => types! };
                 inputs.Values[i] = OrtValue.CreateTensorValueFromMemory(OrtMemoryInfo.DefaultInstance, data.AsMemory(0, cells), shape);
             }
 
@@ -179,7 +179,7 @@ public sealed class OnnxEmbedder : IEmbedder, IDisposable
             try
             {
                 long started = Stopwatch.GetTimestamp();
-                using IDisposableReadOnlyCollection<OrtValue> outputs = session.Run(runOptions, inputNames, inputs.Values, outputNames);
+                using IDisposableReadOnlyCollection<OrtValue> outputs = session.Run(_runOptions, _inputNames, inputs.Values, _outputNames);
                 ProxyMetrics.EmbedDuration.Observe(Stopwatch.GetElapsedTime(started).TotalSeconds);
                 Pool(outputs[0], pieces, longest, vectors);
             }
@@ -221,19 +221,19 @@ public sealed class OnnxEmbedder : IEmbedder, IDisposable
 
     InferenceSession TakeSession()
     {
-        if (turns is null)
-            return sessions[0];
-        turns.Wait();
-        idle.TryTake(out InferenceSession? session);
+        if (_turns is null)
+            return _sessions[0];
+        _turns.Wait();
+        _idle.TryTake(out InferenceSession? session);
         return session!;
     }
 
     void ReturnSession(InferenceSession session)
     {
-        if (turns is null)
+        if (_turns is null)
             return;
-        idle.Add(session);
-        turns.Release();
+        _idle.Add(session);
+        _turns.Release();
     }
 
     static InferenceSession CreateSession(EmbeddingModelSource source, SessionOptions options)
@@ -254,8 +254,8 @@ public sealed class OnnxEmbedder : IEmbedder, IDisposable
         float[] probe;
         try
         {
-            const string ProbeText = "dimension probe";
-            IReadOnlyList<int> pieces = encoder.Encode(ProbeText)!;
+            const string probeText = "dimension probe";
+            IReadOnlyList<int> pieces = _encoder.Encode(probeText)!;
             var vectors = new float[1][];
             Run([pieces], rows: 1, longest: pieces.Count, vectors);
             probe = vectors[0];
@@ -271,11 +271,11 @@ public sealed class OnnxEmbedder : IEmbedder, IDisposable
 
     public void Dispose()
     {
-        foreach (InferenceSession session in sessions)
+        foreach (InferenceSession session in _sessions)
             session.Dispose();
-        sessionOptions.Dispose();
-        runOptions.Dispose();
-        turns?.Dispose();
+        _sessionOptions.Dispose();
+        _runOptions.Dispose();
+        _turns?.Dispose();
     }
 
     /// <summary>The OrtValues of one run, disposed together.</summary>

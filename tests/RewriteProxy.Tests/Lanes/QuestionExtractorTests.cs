@@ -12,7 +12,7 @@ public sealed class QuestionExtractorTests
     static readonly LaneOptions Lane = new() { Name = "siblings", Kind = LaneKind.Siblings };
 
     static Extraction Extract(string json, LaneOptions? lane = null) =>
-        QuestionExtractor.Extract(ChatRequest.Parse(Encoding.UTF8.GetBytes(json)), lane ?? Lane);
+        QuestionExtractor.Extract(ChatCompletionsFormat.Instance.Read(Encoding.UTF8.GetBytes(json), null), lane ?? Lane);
 
     static string Call(string messages, string extra = "") => $$"""{"model":"m","messages":{{messages}}{{extra}}}""";
 

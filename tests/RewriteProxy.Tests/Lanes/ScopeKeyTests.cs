@@ -18,9 +18,10 @@ public sealed class ScopeKeyTests
     static string Scope(JsonObject body, LaneOptions? lane = null, string partition = Partition)
     {
         lane ??= Draft;
-        var request = ChatRequest.Parse(Encoding.UTF8.GetBytes(body.ToJsonString()));
+        var request = ChatCompletionsFormat.Instance.Read(Encoding.UTF8.GetBytes(body.ToJsonString()), null);
         var site = QuestionExtractor.Extract(request, lane).Site ?? throw new InvalidOperationException("no question");
-        return ScopeKey.Compute(lane, request, site, partition);
+        var endpoint = LaneEndpoint.Match("/v1/chat/completions", Microsoft.AspNetCore.Http.QueryString.Empty)!;
+        return ScopeKey.Compute(lane, endpoint, request, site, partition, versionHeaders: "");
     }
 
     static JsonObject With(Action<JsonObject> change)

@@ -5,6 +5,15 @@ namespace RewriteProxy.Benchmarks;
 // A named class rather than top-level statements: the proxy assembly has its own top-level Program.
 public static class Program
 {
-    /// <summary>Every benchmark class in this assembly; pick with --filter (e.g. --filter '*Embed*').</summary>
-    public static void Main(string[] args) => BenchmarkSwitcher.FromAssembly(typeof(Program).Assembly).Run(args);
+    /// <summary>
+    /// Every benchmark class in this assembly; pick with --filter (e.g. --filter '*Embed*'). <c>hit-latency</c> instead
+    /// times hits of a running proxy process against the bare model run (Hits/HitLatency.cs; used by scripts/bench.sh).
+    /// </summary>
+    public static int Main(string[] args)
+    {
+        if (args.Length > 0 && args[0] == "hit-latency")
+            return Hits.HitLatency.RunAsync(args[1..]).GetAwaiter().GetResult();
+        BenchmarkSwitcher.FromAssembly(typeof(Program).Assembly).Run(args);
+        return 0;
+    }
 }

@@ -16,11 +16,16 @@
 # Knobs (environment):
 #   BENCH_ROUNDS (3)           measured rounds per target; targets take turns within a round, ratios use the median
 #   BENCH_STREAMS (300)        fan-out streams per round
+#   BENCH_FANOUT_WARMUP (5)    fan-out warm-up rounds per target, printed but not counted: the proxy's first rounds
+#                              after start cost ~2x the CPU of later ones (JIT tiering; see docs/measurements)
 #   BENCH_FANOUT_PIN (0)       1: pin the fan-out's middle process to core 0 (default: every process sees both cores,
 #                              as the proxy would in production; the embedder then loads as it ships)
 #   BENCH_PIN (1)              wrk runs: the process under test alone on core 0, wrk + upstream on core 1
 #   BENCH_DURATION (10s), BENCH_WARMUP (3s, unrecorded), BENCH_CONNECTIONS (16)   wrk runs
 #   BENCH_PROXY_ARGS, BENCH_PROXY_ENV   extra arguments / VAR=value words for every RewriteProxy started (A/B runs)
+#   BENCH_B_ARGS, BENCH_B_ENV, BENCH_B_BIN   fanout and hits: also start a second RewriteProxy with these arguments,
+#                              environment or binary (e.g. a build of the previous commit), measured as "proxyB" in the
+#                              same rounds: an A/B in one run (only the ratios of one run are compared)
 #   BENCH_HIT_CALLS (300), BENCH_HIT_BLOCKS (5)   hits: sequential calls per case and block
 #   BENCH_WARMUP_S (120), BENCH_SAMPLE_S (10), BENCH_SOAK_CONNECTIONS (4), BENCH_DELAY_MS (100), BENCH_MAX_RSS_GROWTH (5)
 # Why these: 300 streams is the issue's load; 3 rounds is the least that shows the spread; 16 connections is the
@@ -355,7 +360,7 @@ mem_detail() { # pid: what the resident memory is made of
 }
 
 run_fanout() { # rounds
-  local n_rounds=${1:-$rounds} fan_sut=(env) fan_harness=(env) workers
+  local n_rounds=${1:-$rounds} fan_sut=(env) fan_harness=(env) workers fan_warmup=${BENCH_FANOUT_WARMUP:-5}
   workers=$(nproc)
   if [ "${BENCH_FANOUT_PIN:-0}" = 1 ] && [ "$(nproc)" -ge 2 ]; then fan_sut=(taskset -c 0); fan_harness=(taskset -c 1); workers=1; fi
   echo "== fanout: $streams new streams at once, upstream sends 50 SSE events 20 ms apart; pinning: $([ "${fan_sut[0]}" = env ] && echo "off (every process sees $(nproc) cores; nginx $workers workers)" || echo 'middle on core 0, upstream + client on core 1')"
@@ -368,17 +373,36 @@ run_fanout() { # rounds
   start_proxy fanout
   proxy_up=""; proxy_pin=()
   local rss_start; rss_start=$(rss_mb "$proxy_pid")
+  local b_target=() b_pid=""
+  if [ -n "${BENCH_B_ARGS:-}${BENCH_B_ENV:-}${BENCH_B_BIN:-}" ]; then
+    local b_args b_env b_port=$((proxy_port + 10))
+    read -r -a b_args <<< "${BENCH_B_ARGS:-}"; read -r -a b_env <<< "${BENCH_B_ENV:-}"
+    mkdir -p "$work/fanout-b"
+    env "${b_env[@]}" "${fan_sut[@]}" "${BENCH_B_BIN:-$proxy_bin}" serve --urls "http://127.0.0.1:$b_port" \
+      "--Upstream:BaseUrl=http://127.0.0.1:$sse_port/v1" "--Store:Path=$work/fanout-b/cache.db" "${b_args[@]}" \
+      >"$work/fanout-b/proxy.log" 2>&1 &
+    b_pid=$!; pids+=($b_pid)
+    wait_http "http://127.0.0.1:$b_port/readyz" 600
+    echo "  proxyB: env '${BENCH_B_ENV:-}' args '${BENCH_B_ARGS:-}' binary ${BENCH_B_BIN:-(same)}; VmRSS after start $(rss_mb "$b_pid") MB"
+    b_target=(--target "proxyB=http://127.0.0.1:$b_port/v1/chat/completions,pid=$b_pid")
+  fi
   local json="$work/fanout.json" before after
   before=$(loadavg)
-  "${fan_harness[@]}" "$fanout_bin" run --streams "$streams" --rounds "$n_rounds" --json "$json" \
+  "${fan_harness[@]}" "$fanout_bin" run --streams "$streams" --rounds "$n_rounds" --warmup-rounds "$fan_warmup" --json "$json" \
     --target "direct=http://127.0.0.1:$sse_port/v1/chat/completions" \
     --target "nginx=http://127.0.0.1:$nginx_port/v1/chat/completions,pid=$nginx_pid" \
-    --target "proxy=http://127.0.0.1:$proxy_port/v1/chat/completions,pid=$proxy_pid"
+    --target "proxy=http://127.0.0.1:$proxy_port/v1/chat/completions,pid=$proxy_pid" "${b_target[@]}"
   after=$(loadavg)
   local rss_end; rss_end=$(rss_mb "$proxy_pid")
   echo "  proxy VmRSS: $rss_start MB after start (model loaded), $rss_end MB after the fan-out; nginx (all processes): $(jq '[.[] | select(.Target=="nginx") | .RssMb] | max | floor' "$json") MB"
   echo "  proxy memory after the fan-out: $(mem_detail "$proxy_pid")"
   echo "  load $before -> $after"
+  if [ -n "$b_pid" ]; then
+    echo "  proxyB VmRSS after the fan-out: $(rss_mb "$b_pid") MB; $(mem_detail "$b_pid")"
+    echo "  per round, proxyB CPU / proxy CPU: $(per_round "$json" '.proxyB.CpuMs / .proxy.CpuMs' | awk '{printf "%.2f ", $1}')"
+    echo "  per round, added TTFB p99 (ms) proxyB: $(per_round "$json" '.proxyB.TtfbP99 - .direct.TtfbP99' | awk '{printf "%+.1f ", $1}')"
+    stop_tracked "$b_pid"
+  fi
   stop_proxy; stop_tracked "$nginx_pid"; stop_tracked "$sse_pid"
 
   # Per round (targets measured back to back), then the median over rounds.
@@ -408,16 +432,33 @@ run_hits() {
   # CacheSize=0: each semantic hit runs the model, as a new paraphrase does (otherwise its vector comes from memory).
   start_proxy hits --Embedding:CacheSize=0
   proxy_pin=()
-  local json="$work/hits.json"
-  dotnet "$hits_dll" hit-latency --url "http://127.0.0.1:$proxy_port" --calls "${BENCH_HIT_CALLS:-300}" \
+  local json="$work/hits.json" b_url=() b_pid=""
+  if [ -n "${BENCH_B_ARGS:-}${BENCH_B_ENV:-}${BENCH_B_BIN:-}" ]; then
+    local b_args b_env b_port=$((proxy_port + 10))
+    read -r -a b_args <<< "${BENCH_B_ARGS:-}"; read -r -a b_env <<< "${BENCH_B_ENV:-}"
+    mkdir -p "$work/hits-b"
+    env "${b_env[@]}" "${BENCH_B_BIN:-$proxy_bin}" serve --urls "http://127.0.0.1:$b_port" \
+      "--Upstream:BaseUrl=http://127.0.0.1:$upstream_port/v1" "--Store:Path=$work/hits-b/cache.db" --Embedding:CacheSize=0 \
+      "${b_args[@]}" >"$work/hits-b/proxy.log" 2>&1 &
+    b_pid=$!; pids+=($b_pid)
+    wait_http "http://127.0.0.1:$b_port/readyz" 600
+    echo "  proxyB: env '${BENCH_B_ENV:-}' args '${BENCH_B_ARGS:-}' binary ${BENCH_B_BIN:-(same)}"
+    b_url=(--b-url "http://127.0.0.1:$b_port")
+  fi
+  dotnet "$hits_dll" hit-latency --url "http://127.0.0.1:$proxy_port" "${b_url[@]}" --calls "${BENCH_HIT_CALLS:-300}" \
     --blocks "${BENCH_HIT_BLOCKS:-5}" --json "$json"
+  [ -n "$b_pid" ] && stop_tracked "$b_pid"
   stop_proxy; stop_tracked "$upstream_pid"
   fig[hit_semantic_p50]=$(jq '."semantic-hit".p50' "$json")
   fig[hit_exact_p50]=$(jq '."exact-hit".p50' "$json")
   fig[hit_bare2_p50]=$(jq '."bare-2-threads".p50' "$json")
   fig[hit_bare1_p50]=$(jq '."bare-1-thread".p50' "$json")
+  fig[hit_bare2nospin_p50]=$(jq '."bare-2-threads-nospin".p50' "$json")
   fig[hit_roundtrip_p50]=$(jq '."round-trip".p50' "$json")
   fig[hit_semantic_ratio]=$(ratio "${fig[hit_semantic_p50]}" "${fig[hit_bare2_p50]}")
+  if [ -n "$b_pid" ]; then
+    echo "  proxyB: semantic hit p50 $(jq '."semantic-hit-b".p50' "$json") ms = $(ratio "$(jq '."semantic-hit-b".p50' "$json")" "${fig[hit_bare2_p50]}") x bare 2-thread; exact hit p50 $(jq '."exact-hit-b".p50' "$json") ms"
+  fi
 }
 
 # ---- small passthrough against nginx ----------------------------------------------------------------------------------
@@ -429,13 +470,30 @@ run_passthrough() {
   start_nginx_proxy "$upstream_port" 1
   start_proxy passthrough
   start_forwarder
+  local b_pid="" b_port=$((proxy_port + 10))
+  if [ -n "${BENCH_B_ARGS:-}${BENCH_B_ENV:-}${BENCH_B_BIN:-}" ]; then
+    local b_args b_env
+    read -r -a b_args <<< "${BENCH_B_ARGS:-}"; read -r -a b_env <<< "${BENCH_B_ENV:-}"
+    mkdir -p "$work/passthrough-b"
+    env "${b_env[@]}" "${on_sut[@]}" "${BENCH_B_BIN:-$proxy_bin}" serve --urls "http://127.0.0.1:$b_port" \
+      "--Upstream:BaseUrl=http://127.0.0.1:$upstream_port/v1" "--Store:Path=$work/passthrough-b/cache.db" "${b_args[@]}" \
+      >"$work/passthrough-b/proxy.log" 2>&1 &
+    b_pid=$!; pids+=($b_pid)
+    wait_http "http://127.0.0.1:$b_port/readyz" 600
+    echo "  proxyB: env '${BENCH_B_ENV:-}' args '${BENCH_B_ARGS:-}' binary ${BENCH_B_BIN:-(same)}"
+  fi
   local r
   for r in $(seq 1 "$rounds"); do
     measure "direct-r$r" "http://127.0.0.1:$upstream_port/v1/chat/completions"  "$json_body"
     measure "nginx-r$r"  "http://127.0.0.1:$nginx_port/v1/chat/completions"     "$json_body"
     measure "proxy-r$r"  "http://127.0.0.1:$proxy_port/v1/chat/completions"     "$json_body"
     measure "yarp-r$r"   "http://127.0.0.1:$forwarder_port/v1/chat/completions" "$json_body"
+    [ -n "$b_pid" ] && measure "proxyB-r$r" "http://127.0.0.1:$b_port/v1/chat/completions" "$json_body"
   done
+  if [ -n "$b_pid" ]; then
+    echo "  per round, proxyB / proxy req/s: $(for r in $(seq 1 "$rounds"); do printf '%s ' "$(ratio "${rps[proxyB-r$r]}" "${rps[proxy-r$r]}")"; done)"
+    stop_tracked "$b_pid"
+  fi
   stop_proxy; stop_tracked "$forwarder_pid"; stop_tracked "$nginx_pid"; stop_tracked "$upstream_pid"
   fig[pass_ratio]=$(for r in $(seq 1 "$rounds"); do ratio "${rps[proxy-r$r]}" "${rps[nginx-r$r]}"; echo; done | median)
   fig[pass_yarp_ratio]=$(for r in $(seq 1 "$rounds"); do ratio "${rps[yarp-r$r]}" "${rps[nginx-r$r]}"; echo; done | median)
@@ -449,6 +507,9 @@ run_passthrough() {
 has() { [ -n "${fig[$1]:-}" ]; }
 summary() {
   echo
+  # Timings taken while other work kept the cores busy are not comparable to a quiet run: say so beside the table.
+  # The benchmark itself keeps about 2 runnable, so the line is drawn one above the core count.
+  awk -v l="$(cut -d' ' -f1 /proc/loadavg)" -v n="$(nproc)" 'BEGIN{ if (l > n + 1) printf "WARNING: 1-minute load %s > %s cores + 1 (a run adds about 2 by itself): other work shared the machine; re-run in a quiet window before quoting these\n", l, n }'
   echo "== ratios against the targets of issue #16 (medians over rounds; load now $(loadavg))"
   echo "| figure | measured | target | verdict |"
   echo "| --- | ---: | --- | --- |"
@@ -468,6 +529,8 @@ summary() {
       "${fig[hit_semantic_ratio]}" "$(verdict "${fig[hit_semantic_ratio]}" '<=' 1.3)"
     printf '| exact hit p50 (empty round trip %.3f ms) | %.3f ms | ≤ 0.5 ms | %s |\n' "${fig[hit_roundtrip_p50]}" "${fig[hit_exact_p50]}" \
       "$(verdict "${fig[hit_exact_p50]}" '<=' 0.5)"
+    printf '| semantic hit p50 / bare run with the proxy'"'"'s session settings (2 threads, no spinning; %.3f ms) | %.2f | | |\n' \
+      "${fig[hit_bare2nospin_p50]}" "$(ratio "${fig[hit_semantic_p50]}" "${fig[hit_bare2nospin_p50]}")"
   fi
   if has pass_ratio; then
     printf '| small passthrough req/s, proxy / nginx | %.2f | ≥ 0.5 | %s |\n' "${fig[pass_ratio]}" "$(verdict "${fig[pass_ratio]}" '>=' 0.5)"

@@ -5,10 +5,10 @@
 //       [DONE]. Each event carries the upstream's Stopwatch timestamp ("sent"); Stopwatch is CLOCK_MONOTONIC on Linux,
 //       shared by every process on the machine, so the client can tell how long each event took to arrive.
 //
-//   fanout run --target name=url[,pid=N] ... [--streams 300] [--rounds 3] [--timeout-s 60] [--json file]
+//   fanout run --target name=url[,pid=N] ... [--streams 300] [--rounds 3] [--warmup-rounds 1] [--timeout-s 60] [--json file]
 //       Opens `streams` new connections at once against each target, one round per target in turn (direct, nginx,
-//       proxy, direct, ...), so every target sees the same machine state within a round. One unrecorded warm-up round
-//       per target first (JIT, connection pools). Per round: time to first event (TTFB), gaps between events, arrival
+//       proxy, direct, ...), so every target sees the same machine state within a round. Warm-up rounds per target
+//       first (JIT tiering, connection pools), printed but not in the JSON. Per round: time to first event (TTFB), gaps between events, arrival
 //       lag, and the CPU time (utime + stime from /proc, children included: nginx's workers) of the middle process.
 //
 // Loopback only; every round is bounded by --timeout-s and the stream count; the program exits by itself.
@@ -101,7 +101,7 @@ static class FanoutClient
     public static async Task<int> RunAsync(string[] args)
     {
         var targets = new List<Target>();
-        int streams = 300, rounds = 3, timeoutS = 60;
+        int streams = 300, rounds = 3, timeoutS = 60, warmupRounds = 1;
         string? json = null;
         for (int i = 0; i < args.Length; i++)
         {
@@ -115,6 +115,7 @@ static class FanoutClient
                     break;
                 case "--streams": streams = int.Parse(args[++i]); break;
                 case "--rounds": rounds = int.Parse(args[++i]); break;
+                case "--warmup-rounds": warmupRounds = int.Parse(args[++i]); break;
                 case "--timeout-s": timeoutS = int.Parse(args[++i]); break;
                 case "--json": json = args[++i]; break;
                 default: Console.Error.WriteLine($"fanout: unknown argument {args[i]}"); return 2;
@@ -122,9 +123,12 @@ static class FanoutClient
         }
         if (targets.Count == 0) { Console.Error.WriteLine("fanout: no --target"); return 2; }
 
-        Console.WriteLine($"fan-out: {streams} new streams at once per round, {rounds} measured round(s) per target after 1 warm-up, " +
+        Console.WriteLine($"fan-out: {streams} new streams at once per round, {rounds} measured round(s) per target after {warmupRounds} warm-up round(s), " +
                           $"targets in turn: {string.Join(", ", targets.Select(t => t.Name))}");
-        foreach (var t in targets) await RoundAsync(t, 0, streams, timeoutS);
+        // Warm-up rounds are printed (round 0, -1, ...: the first one after start shows the cost of the JIT's tiering)
+        // but left out of the JSON the ratios are computed from.
+        for (int w = warmupRounds; w >= 1; w--)
+            foreach (var t in targets) Print(await RoundAsync(t, 1 - w, streams, timeoutS));
 
         var results = new List<RoundResult>();
         bool failed = false;

@@ -13,7 +13,7 @@ namespace RewriteProxy.Benchmarks.Hits;
 /// Hit latency of a running proxy process (the real <c>rewriteproxy serve</c>, as scripts/bench.sh starts it) against the
 /// bare model run on the same question, in one process and one run:
 /// <code>dotnet RewriteProxy.Benchmarks.dll hit-latency --url http://127.0.0.1:18093 [--calls 300] [--blocks 5] [--json file]</code>
-/// Cases run in alternating blocks (bare, bare 1-thread, semantic hit, exact hit, empty round trip, then again), so a
+/// Cases run in alternating blocks (bare runs, semantic hit, exact hit, empty round trip, then again), so a
 /// change in the machine's load during the run falls on every case alike. Calls are sequential on one kept-alive
 /// connection, so nothing queues: each figure is the cost of one call. The proxy must run with
 /// <c>--Embedding:CacheSize=0</c> so that each semantic hit runs the model, as a paraphrase never seen before does.
@@ -24,11 +24,13 @@ public static class HitLatency
     const string Question = "How long can I keep a shared bike before the overtime fee starts?";
     const string Paraphrase = "How long may I keep a shared bike before the overtime fee begins?";
 
-    static readonly string[] Cases = ["bare-2-threads", "bare-1-thread", "semantic-hit", "exact-hit", "round-trip"];
+    // bare-2-threads: ORT's defaults with every core (its threads spin between parallel sections): the floor the target
+    // names. bare-2-threads-nospin: the proxy's own session settings (OnnxEmbedder: no spinning). bare-1-thread: one core.
+    static readonly string[] Cases = ["bare-2-threads", "bare-2-threads-nospin", "bare-1-thread", "semantic-hit", "exact-hit", "round-trip"];
 
     public static async Task<int> RunAsync(string[] args)
     {
-        Uri? url = null;
+        Uri? url = null, bUrl = null;
         int calls = 300, blocks = 5;
         string? json = null, lane = "draft";
         for (int i = 0; i < args.Length; i++)
@@ -36,6 +38,7 @@ public static class HitLatency
             switch (args[i])
             {
                 case "--url": url = new Uri(args[++i]); break;
+                case "--b-url": bUrl = new Uri(args[++i]); break;
                 case "--calls": calls = int.Parse(args[++i], CultureInfo.InvariantCulture); break;
                 case "--blocks": blocks = int.Parse(args[++i], CultureInfo.InvariantCulture); break;
                 case "--json": json = args[++i]; break;
@@ -46,17 +49,24 @@ public static class HitLatency
         if (url is null) { Console.Error.WriteLine("hit-latency: --url is required"); return 2; }
 
         using var client = new HttpClient { BaseAddress = url };
+        // A second proxy (another build or setting) measured in the same blocks, for a before/after in one run.
+        using var bClient = bUrl is null ? null : new HttpClient { BaseAddress = bUrl };
         byte[] questionBody = Body(Question), paraphraseBody = Body(Paraphrase);
         string lanePath = $"/lane/{lane}/v1/chat/completions";
         // Seeds the entry: the first call is a miss (stored), the same question is then an exact hit and the paraphrase
         // a semantic one. Anything else means the figures below would time the wrong path.
-        await ExpectAsync(client, lanePath, questionBody, "miss", "hit-exact");
-        await ExpectAsync(client, lanePath, questionBody, "hit-exact");
-        await ExpectAsync(client, lanePath, paraphraseBody, "hit-semantic");
+        foreach (var c in bClient is null ? [client] : new[] { client, bClient })
+        {
+            await ExpectAsync(c, lanePath, questionBody, "miss", "hit-exact");
+            await ExpectAsync(c, lanePath, questionBody, "hit-exact");
+            await ExpectAsync(c, lanePath, paraphraseBody, "hit-semantic");
+        }
+        string[] cases = bClient is null ? Cases : [.. Cases, "semantic-hit-b", "exact-hit-b"];
 
         EmbeddingModelSource source = EmbeddingModelSource.Packaged();
         // The proxy's session settings (OnnxEmbedder.Load) with all cores, and with one thread.
         using var bare2 = Session(source, Environment.ProcessorCount);
+        using var bare2NoSpin = Session(source, Environment.ProcessorCount, spin: false);
         using var bare1 = Session(source, 1);
         var encoder = WordPieceEncoder.Load(new MemoryStream(source.Vocabulary), "vocab.txt", 256);
         string[] inputNames = bare2.InputMetadata.Keys.ToArray();
@@ -67,23 +77,26 @@ public static class HitLatency
         Func<Task> Call(string name) => name switch
         {
             "bare-2-threads" => () => { using var o = bare2.Run(runOptions, inputNames, input, outputNames); return Task.CompletedTask; },
+            "bare-2-threads-nospin" => () => { using var o = bare2NoSpin.Run(runOptions, inputNames, input, outputNames); return Task.CompletedTask; },
             "bare-1-thread" => () => { using var o = bare1.Run(runOptions, inputNames, input, outputNames); return Task.CompletedTask; },
             "semantic-hit" => () => PostAsync(client, lanePath, paraphraseBody),
             "exact-hit" => () => PostAsync(client, lanePath, questionBody),
+            "semantic-hit-b" => () => PostAsync(bClient!, lanePath, paraphraseBody),
+            "exact-hit-b" => () => PostAsync(bClient!, lanePath, questionBody),
             _ => () => GetAsync(client, "/healthz"),
         };
 
-        var times = Cases.ToDictionary(c => c, _ => new List<double>());
+        var times = cases.ToDictionary(c => c, _ => new List<double>());
         string loadBefore = Load();
         Console.WriteLine($"hit latency: {blocks} blocks x {calls} sequential calls per case, one kept-alive connection; warm-up {calls / 5} calls per case");
-        foreach (var name in Cases)
+        foreach (var name in cases)
         {
             var call = Call(name);
             for (int i = 0; i < calls / 5; i++) await call();
         }
         for (int b = 0; b < blocks; b++)
         {
-            foreach (var name in Cases)
+            foreach (var name in cases)
             {
                 var call = Call(name);
                 var block = new List<double>(calls);
@@ -105,7 +118,7 @@ public static class HitLatency
         Console.WriteLine();
         Console.WriteLine("| case | p50 ms | p90 ms | p99 ms |");
         Console.WriteLine("| --- | ---: | ---: | ---: |");
-        foreach (var name in Cases)
+        foreach (var name in cases)
         {
             var all = times[name];
             all.Sort();
@@ -117,14 +130,18 @@ public static class HitLatency
         return 0;
     }
 
-    static InferenceSession Session(EmbeddingModelSource source, int threads) =>
-        new(source.Model, new Microsoft.ML.OnnxRuntime.SessionOptions
+    static InferenceSession Session(EmbeddingModelSource source, int threads, bool spin = true)
+    {
+        var options = new Microsoft.ML.OnnxRuntime.SessionOptions
         {
             GraphOptimizationLevel = GraphOptimizationLevel.ORT_ENABLE_ALL,
             ExecutionMode = ExecutionMode.ORT_SEQUENTIAL,
             IntraOpNumThreads = threads,
             InterOpNumThreads = 1,
-        });
+        };
+        if (!spin) options.AddSessionConfigEntry("session.intra_op.allow_spinning", "0");
+        return new InferenceSession(source.Model, options);
+    }
 
     static OrtValue[] Prepare(string[] inputNames, IReadOnlyList<int> pieces)
     {

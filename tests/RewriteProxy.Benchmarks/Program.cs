@@ -15,6 +15,8 @@ public static class Program
     {
         if (args.Length > 0 && args[0] == "hit-latency")
             return Hits.HitLatency.RunAsync(args[1..]).GetAwaiter().GetResult();
+        if (args.Length > 0 && args[0] == "embedder-load")
+            return Embedding.EmbedderShape.Load(args[1..]);
         if (args.Length > 0 && args[0] == "embed-shape")
             return Embedding.EmbedderShape.Run(args[1..]);
         if (args.Length > 0 && args[0] == "hit-stages")

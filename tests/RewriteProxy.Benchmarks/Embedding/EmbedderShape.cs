@@ -125,6 +125,20 @@ public static class EmbedderShape
         return 0;
     }
 
+    /// <summary>
+    /// <c>embedder-load --sessions N</c>: resident memory right after <see cref="OnnxEmbedder.Load(RewriteProxy.Hosting.EmbeddingOptions, int, Microsoft.Extensions.Logging.ILogger?)"/>,
+    /// the proxy's own loading path (mapped resource pages and the managed model copy given back), to set beside the
+    /// raw sessions of <see cref="Run"/>.
+    /// </summary>
+    public static int Load(string[] args)
+    {
+        int sessions = args.Length > 1 && args[0] == "--sessions" ? int.Parse(args[1]) : OnnxEmbedder.DefaultSessions;
+        Console.WriteLine($"  before load: {Split()}");
+        using var embedder = OnnxEmbedder.Load(new RewriteProxy.Hosting.EmbeddingOptions(), sessions);
+        Console.WriteLine($"OnnxEmbedder.Load with {sessions} session(s): {Split()}, VmRSS {Rss():0} MB");
+        return 0;
+    }
+
     static string Split() => string.Join(", ", File.ReadLines("/proc/self/status")
         .Where(l => l.StartsWith("RssAnon:") || l.StartsWith("RssFile:"))
         .Select(l => $"{l.Split(':')[0]} {double.Parse(l.Split(' ', StringSplitOptions.RemoveEmptyEntries)[1]) / 1024:0} MB"))

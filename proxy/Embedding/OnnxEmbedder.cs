@@ -148,7 +148,7 @@ public sealed class OnnxEmbedder : IEmbedder, IDisposable
     /// One full, compacting collection right after loading. The model's bytes were read into a managed array (the
     /// ONNX Runtime API takes a byte[]) that is garbage once the sessions exist, but a 90 MB array on the large object
     /// heap is only reclaimed by a full collection, which an idle or lightly loaded proxy may not run for hours.
-    /// Measured: ~87 MB of VmRSS given back (docs/measurements). Once per load, at start, before any request.
+    /// Measured: ~85 MB of VmRSS given back (docs/measurements). Once per load, at start, before any request.
     /// </summary>
     static void ReleaseModelCopy()
     {

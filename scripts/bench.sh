@@ -229,7 +229,7 @@ verdict() { awk -v v="$1" -v op="$2" -v t="$3" 'BEGIN{ ok = (op=="<=") ? (v<=t) 
 
 machine() {
   echo "machine: $(nproc) cores, $(awk -F': ' '/model name/{print $2; exit}' /proc/cpuinfo), $(date -u +%Y-%m-%dT%H:%MZ), load $(loadavg)"
-  [ "$mode" = soak ] && return 0
+  case "$mode" in all|passthrough|lanes) ;; *) return 0 ;; esac
   echo "wrk: ${threads} threads, ${connections} connections, ${duration} after ${warmup} unrecorded; pinning: $([ ${#on_sut[@]} -gt 0 ] && echo 'under test on core 0, wrk + upstream on core 1' || echo off)"
 }
 

@@ -229,7 +229,9 @@ verdict() { awk -v v="$1" -v op="$2" -v t="$3" 'BEGIN{ ok = (op=="<=") ? (v<=t) 
 
 machine() {
   echo "machine: $(nproc) cores, $(awk -F': ' '/model name/{print $2; exit}' /proc/cpuinfo), $(date -u +%Y-%m-%dT%H:%MZ), load $(loadavg)"
-  case "$mode" in all|passthrough|lanes) ;; *) return 0 ;; esac
+}
+
+wrk_settings() {
   echo "wrk: ${threads} threads, ${connections} connections, ${duration} after ${warmup} unrecorded; pinning: $([ ${#on_sut[@]} -gt 0 ] && echo 'under test on core 0, wrk + upstream on core 1' || echo off)"
 }
 
@@ -237,7 +239,7 @@ run_lanes() {
   local json_body stream_body
   json_body=$(chat_body "$question")
   stream_body=$(chat_body "$question" true)
-  machine
+  machine; wrk_settings
   start_upstream
   start_nginx_proxy "$upstream_port" 1
   echo "passthrough (POST /v1/chat/completions, $(printf '%s' "$json_body" | wc -c)-byte body; JSON $(printf '%s' "$completion_json" | wc -c) bytes back):"
@@ -473,7 +475,7 @@ run_hits() {
 run_passthrough() {
   local json_body; json_body=$(chat_body "$question")
   echo "== passthrough: POST /v1/chat/completions, $(printf '%s' "$json_body" | wc -c)-byte body, $(printf '%s' "$completion_json" | wc -c)-byte JSON back"
-  machine
+  machine; wrk_settings
   start_upstream
   start_nginx_proxy "$upstream_port" 1
   start_proxy passthrough

@@ -2,6 +2,7 @@ using System.Buffers;
 using System.Collections.Concurrent;
 using System.Diagnostics;
 using System.Numerics.Tensors;
+using System.Runtime;
 using Microsoft.Extensions.Logging;
 using Microsoft.ML.OnnxRuntime;
 using RewriteProxy.Telemetry;
@@ -66,11 +67,21 @@ public sealed class OnnxEmbedder : IEmbedder, IDisposable
         Load(options, DefaultSessions, logger);
 
     /// <summary>
-    /// Sessions kept by <see cref="Load(EmbeddingOptions, ILogger?)"/>, the threads split between them. Measured on 2 cores
-    /// with 4 concurrent callers (docs/measurements/embedding.md): two sessions of one thread served a question in 10.9 ms, one
-    /// shared session of two threads in 16.2 ms. Costs one more copy of the model's weights in memory.
+    /// Sessions kept by <see cref="Load(EmbeddingOptions, ILogger?)"/>, the threads split between them: one session with
+    /// every thread. It holds the model's weights once (two sessions held them twice: ~90 MB more resident memory), and
+    /// a lone question, the common case for a semantic hit, runs on every core instead of on half of them. Callers
+    /// share it concurrently (InferenceSession.Run is thread-safe). Measured against two one-thread sessions on 2 cores
+    /// (docs/measurements/performance.md): no slower alone or with 2 or 4 concurrent callers once its threads do
+    /// not spin (<see cref="AllowSpinning"/>); with spinning it was about twice as slow under load.
     /// </summary>
-    internal const int DefaultSessions = 2;
+    internal const int DefaultSessions = 1;
+
+    /// <summary>
+    /// Whether ORT's intra-op threads spin-wait for work instead of sleeping. Off: on a 2-core proxy a spinning thread
+    /// takes the core that request handling (or a concurrent question) needs. Measured on 2 cores under load, one
+    /// 2-thread session: 15–18 ms of CPU per question with spinning, 7–10 ms without (docs/measurements).
+    /// </summary>
+    internal const bool AllowSpinning = false;
 
     /// <summary>As <see cref="Load(EmbeddingOptions, ILogger?)"/> with <paramref name="sessionCount"/> sessions: 1 = one session
     /// shared by every caller; more = a pool, each session with its share of the threads.</summary>
@@ -81,6 +92,22 @@ public sealed class OnnxEmbedder : IEmbedder, IDisposable
         // More sessions than threads would leave a session without a thread of its own.
         sessionCount = Math.Min(sessionCount, threads);
         long started = Stopwatch.GetTimestamp();
+        OnnxEmbedder embedder = Create(options, sessionCount, threads);
+        ReleaseModelCopy();
+        logger?.LogInformation(
+            "Embedding model {Model} loaded in {Milliseconds} ms: id {ModelId}, {Dimension} dimensions, {Sessions} session(s) x {Threads} thread(s), {MaxTokens} word pieces",
+            embedder._modelName, (long)Stopwatch.GetElapsedTime(started).TotalMilliseconds, embedder.ModelId,
+            embedder.Dimension, sessionCount, embedder._sessionOptions.IntraOpNumThreads, embedder.MaxTokens);
+        return embedder;
+    }
+
+    /// <summary>
+    /// Reads the model and builds the sessions. A method of its own so that the model's bytes (a 90 MB managed array)
+    /// are referenced from no frame once it returns: ONNX Runtime keeps its own copy, and <see cref="ReleaseModelCopy"/>
+    /// can then give the array's memory back.
+    /// </summary>
+    static OnnxEmbedder Create(EmbeddingOptions options, int sessionCount, int threads)
+    {
         EmbeddingModelSource source = EmbeddingModelSource.Resolve(options);
         WordPieceEncoder encoder = WordPieceEncoder.Load(new MemoryStream(source.Vocabulary, writable: false), source.VocabularyName, options.MaxTokens);
 
@@ -91,18 +118,20 @@ public sealed class OnnxEmbedder : IEmbedder, IDisposable
             IntraOpNumThreads = Math.Max(1, threads / sessionCount),
             InterOpNumThreads = 1,
         };
+        // Between runs, ORT's intra-op threads spin-wait for the next parallel section by default. Those spins take a core
+        // from request handling on a proxy that embeds now and then; a run's own sections still follow each other closely.
+        sessionOptions.AddSessionConfigEntry("session.intra_op.allow_spinning", AllowSpinning ? "1" : "0");
         var sessions = new InferenceSession[sessionCount];
         try
         {
             for (int i = 0; i < sessionCount; i++)
                 sessions[i] = CreateSession(source, sessionOptions);
             (string[] inputs, string output) = BertModelShape.Check(sessions[0], source.ModelName);
-            var embedder = new OnnxEmbedder(encoder, sessionOptions, sessions, source.ModelId(PoolingName), inputs, output);
+            var embedder = new OnnxEmbedder(encoder, sessionOptions, sessions, source.ModelId(PoolingName), inputs, output)
+            {
+                _modelName = source.ModelName,
+            };
             embedder.Dimension = embedder.ProbeDimension(source.ModelName);
-            logger?.LogInformation(
-                "Embedding model {Model} loaded in {Milliseconds} ms: id {ModelId}, {Dimension} dimensions, {Sessions} session(s) x {Threads} thread(s), {MaxTokens} word pieces",
-                source.ModelName, (long)Stopwatch.GetElapsedTime(started).TotalMilliseconds, embedder.ModelId,
-                embedder.Dimension, sessionCount, sessionOptions.IntraOpNumThreads, encoder.MaxTokens);
             return embedder;
         }
         catch
@@ -113,6 +142,20 @@ public sealed class OnnxEmbedder : IEmbedder, IDisposable
             throw;
         }
     }
+
+    /// <summary>
+    /// One full, compacting collection right after loading. The model's bytes were read into a managed array (the
+    /// ONNX Runtime API takes a byte[]) that is garbage once the sessions exist, but a 90 MB array on the large object
+    /// heap is only reclaimed by a full collection, which an idle or lightly loaded proxy may not run for hours.
+    /// Measured: ~85 MB of VmRSS given back (docs/measurements). Once per load, at start, before any request.
+    /// </summary>
+    static void ReleaseModelCopy()
+    {
+        GCSettings.LargeObjectHeapCompactionMode = GCLargeObjectHeapCompactionMode.CompactOnce;
+        GC.Collect(GC.MaxGeneration, GCCollectionMode.Aggressive, blocking: true, compacting: true);
+    }
+
+    string _modelName = "";
 
     public float[] Embed(string text) => Embed([text])[0];
 

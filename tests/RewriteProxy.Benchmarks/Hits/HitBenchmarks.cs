@@ -107,15 +107,17 @@ public class HitBenchmarks
             IntraOpNumThreads = Environment.ProcessorCount,
             InterOpNumThreads = 1,
         });
-        // The proxy's embedder splits the cores over OnnxEmbedder.DefaultSessions sessions (2 sessions x 1 thread on 2
-        // cores), so one semantic hit runs on a session of that size: this is the floor with the same session shape.
-        _proxySizedSession = new InferenceSession(source.Model, new Microsoft.ML.OnnxRuntime.SessionOptions
+        // The proxy's embedder splits the cores over OnnxEmbedder.DefaultSessions sessions (now one session with every
+        // core) and its threads do not spin (OnnxEmbedder.AllowSpinning): this is the floor with the same session settings.
+        var proxySized = new Microsoft.ML.OnnxRuntime.SessionOptions
         {
             GraphOptimizationLevel = GraphOptimizationLevel.ORT_ENABLE_ALL,
             ExecutionMode = ExecutionMode.ORT_SEQUENTIAL,
             IntraOpNumThreads = Math.Max(1, Environment.ProcessorCount / Math.Min(OnnxEmbedder.DefaultSessions, Environment.ProcessorCount)),
             InterOpNumThreads = 1,
-        });
+        };
+        proxySized.AddSessionConfigEntry("session.intra_op.allow_spinning", OnnxEmbedder.AllowSpinning ? "1" : "0");
+        _proxySizedSession = new InferenceSession(source.Model, proxySized);
         _inputNames = _session.InputMetadata.Keys.ToArray();
         var encoder = WordPieceEncoder.Load(new MemoryStream(source.Vocabulary), "vocab.txt", options.Embedding.MaxTokens);
         _paraphraseInput = Prepare(encoder.Encode(Paraphrase)!);

@@ -35,7 +35,7 @@ public readonly record struct AnchorVerdict(bool Agree, AnchorReason? Reason, st
 /// embedding barely sees — numbers, units, negations, identifiers, and words of opposite meaning (WordNet 3.0
 /// antonyms). "… in 2022?" and "… in 2023?" score 0.97 with all-MiniLM-L6-v2; only this guard tells them apart.
 /// Thread-safe and allocation-light in <see cref="Compare(Anchors, Anchors)"/>, which runs on every candidate;
-/// <see cref="Extract"/> runs once per question. Rules and measurements: DEVELOPERS.md ("Anchor guard").
+/// <see cref="Extract"/> runs once per question. Rules and measurements: docs/measurements/anchor-guard.md.
 /// </summary>
 public sealed partial class AnchorGuard
 {

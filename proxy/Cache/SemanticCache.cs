@@ -46,7 +46,7 @@ public sealed class SemanticCache : IRewriteCache
 
     /// <summary>
     /// Rebuilds the vector index from the store, off the request path: a million entries take minutes to index
-    /// (DEVELOPERS.md). Meanwhile exact lookups work as usual and semantic lookups see what is loaded so far, so
+    /// (docs/measurements/index.md). Meanwhile exact lookups work as usual and semantic lookups see what is loaded so far, so
     /// a call that would have been a semantic hit is a miss until then. Logs how long it took.
     /// </summary>
     public Task LoadIndexAsync() => Task.Run(() =>

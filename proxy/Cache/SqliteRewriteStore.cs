@@ -155,50 +155,13 @@ public sealed class SqliteRewriteStore : IRewriteStore
         """;
 
     public StoredEntry? FindExact(string scopeKey, string normalized, DateTimeOffset minCreated) => Read(c =>
-        c.QuerySingleOrDefault<EntryRow>(
+        c.QuerySingleOrDefault<SqliteEntryRow>(
             $"SELECT {EntryColumns} FROM entries WHERE scope_key = @scopeKey AND normalized = @normalized AND created >= @min",
             new { scopeKey, normalized, min = minCreated.ToUnixTimeMilliseconds() })?.Decode());
 
     public StoredEntry? Get(long id, DateTimeOffset minCreated) => Read(c =>
-        c.QuerySingleOrDefault<EntryRow>($"SELECT {EntryColumns} FROM entries WHERE id = @id AND created >= @min",
+        c.QuerySingleOrDefault<SqliteEntryRow>($"SELECT {EntryColumns} FROM entries WHERE id = @id AND created >= @min",
             new { id, min = minCreated.ToUnixTimeMilliseconds() })?.Decode());
-
-    /// <summary>An <c>entries</c> row as SQLite holds it: scores as JSON text, times as Unix milliseconds.</summary>
-    sealed record EntryRow
-    {
-        public long Id { get; init; }
-        public string ScopeKey { get; init; } = "";
-        public string PartitionHash { get; init; } = "";
-        public string Lane { get; init; } = "";
-        public string Question { get; init; } = "";
-        public string Normalized { get; init; } = "";
-        public string Content { get; init; } = "";
-        public string Scores { get; init; } = "{}";
-        public string? ResponseModel { get; init; }
-        public string? ModelId { get; init; }
-        public long PromptTokens { get; init; }
-        public long CompletionTokens { get; init; }
-        public long Created { get; init; }
-        public long LastHit { get; init; }
-        public long HitCount { get; init; }
-
-        public StoredEntry Decode() => new(Id, ScopeKey, PartitionHash, Lane, Question, Normalized, Content, DecodeScores(Scores),
-            ResponseModel, ModelId, PromptTokens, CompletionTokens, DateTimeOffset.FromUnixTimeMilliseconds(Created),
-            DateTimeOffset.FromUnixTimeMilliseconds(LastHit), HitCount);
-
-        // A damaged scores value costs the hit its drift headers, never the hit itself.
-        static EntryScores DecodeScores(string json)
-        {
-            try
-            {
-                return JsonSerializer.Deserialize<EntryScores>(json) ?? EntryScores.None;
-            }
-            catch (JsonException)
-            {
-                return EntryScores.None;
-            }
-        }
-    }
 
     public IEnumerable<IndexRow> ReadVectors(string modelId)
     {
@@ -218,7 +181,7 @@ public sealed class SqliteRewriteStore : IRewriteStore
     }
 
     public List<StoredEntry> List(string? lane, string? partitionHash, string? contains, int limit) => Read(c =>
-        c.Query<EntryRow>($"""
+        c.Query<SqliteEntryRow>($"""
             SELECT {EntryColumns} FROM entries
             WHERE (@lane IS NULL OR lane = @lane) AND (@partitionHash IS NULL OR partition_hash = @partitionHash)
               AND (@contains IS NULL OR instr(normalized, @contains) > 0)

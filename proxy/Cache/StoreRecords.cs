@@ -27,9 +27,21 @@ public sealed record EntryScores(double? MaxDrift, int Dropped, double[] Drifts)
 }
 
 /// <summary>One stored entry as read back (the vector stays in the index), decoded once by the store.</summary>
+/// <param name="Id">The store's id of the entry; the vector index knows it by this id.</param>
+/// <param name="ScopeKey">The hashed scope: calls share the entry only when theirs is equal.</param>
+/// <param name="PartitionHash">The tenant's partition (a hash, never the credential).</param>
+/// <param name="Lane">The lane's name.</param>
+/// <param name="Question">The question as it was asked.</param>
+/// <param name="Normalized">Its normal form, the key of exact lookups.</param>
+/// <param name="Content">What the app was given: the accepted draft, or the kept siblings one per line.</param>
 /// <param name="Scores">The drift scores the miss reported, so a hit reports the same.</param>
+/// <param name="ResponseModel">The model the upstream named in its answer, repeated in hits.</param>
+/// <param name="ModelId">The embedding model that made the question's vector.</param>
+/// <param name="PromptTokens">Upstream prompt tokens of the miss: what a hit saves.</param>
+/// <param name="CompletionTokens">Upstream completion tokens of the miss: what a hit saves.</param>
 /// <param name="Created">When the entry was stored; it is served until <c>Store:Ttl</c> after this.</param>
 /// <param name="LastHit">When it was last served (its creation time until then); eviction takes the oldest first.</param>
+/// <param name="HitCount">How often it was served.</param>
 public sealed record StoredEntry(
     long Id,
     string ScopeKey,

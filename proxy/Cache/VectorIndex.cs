@@ -17,7 +17,7 @@ namespace RewriteProxy.Cache;
 public sealed class VectorIndex : IDisposable
 {
     /// <summary>Entries per scope at which a graph is built. Chosen from the exact-vs-HNSW lookup and build
-    /// measurements in DEVELOPERS.md ("Vector index"): below it brute force is fast enough and needs no build.</summary>
+    /// measurements in docs/measurements/index.md: below it brute force is fast enough and needs no build.</summary>
     public const int DefaultSwitchSize = 10_000;
 
     private readonly ConcurrentDictionary<string, ScopeIndex> _scopes = new(StringComparer.Ordinal);

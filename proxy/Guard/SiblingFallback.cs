@@ -7,7 +7,7 @@ namespace RewriteProxy.Guard;
 /// <remarks>
 /// Why the question and not the least-drifted candidate: when every candidate is dropped, the least-drifted one is
 /// either an echo (the question again, in other words) or drifted past MaxDrift, and past MaxDrift most candidates
-/// are off topic. Measured on the labelled list (DEVELOPERS.md, "Never an empty expansion"): see
+/// are off topic. Measured on the labelled list (docs/measurements/question-location.md): see
 /// <c>SiblingFallbackTests.Least_drifted_dropped_sibling_is_mostly_off_topic</c>. The question retrieves what the
 /// app would have retrieved without expansion: the safe floor.
 /// </remarks>

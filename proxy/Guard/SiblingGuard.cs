@@ -38,7 +38,7 @@ public static class SiblingGuard
     /// <summary>
     /// λ of MMR = 0.7, leaning to relevance. Drift filtering leaves off-topic survivors that are, by nature, the
     /// most novel candidates, so weighing novelty lifts them past the MaxSiblings cut. Measured on the labelled
-    /// list with MaxSiblings 3 (DEVELOPERS.md ("Drift guard and defaults")): off-topic siblings kept in 45 slots were 6 at λ 0.3, 3 at 0.5,
+    /// list with MaxSiblings 3 (docs/measurements/drift-defaults.md): off-topic siblings kept in 45 slots were 6 at λ 0.3, 3 at 0.5,
     /// 2 at 0.7–0.9 and 1 at 1.0, while mean spread between kept siblings was 0.580, 0.549, 0.511, 0.505 and
     /// 0.492. 0.7 is the most diverse λ at the 2-off-topic level. Carbonell &amp; Goldstein used λ values of 0.3
     /// and 0.7 in their experiments (from memory).

@@ -56,6 +56,9 @@ public sealed class QuestionFinder(IRewriteStore store, RewriteProxyOptions opti
     }
 
     /// <summary>Locates the question of <paramref name="text"/> (the last user message) and counts how it was found.</summary>
+    /// <param name="lane">The lane called.</param>
+    /// <param name="text">The last user message.</param>
+    /// <param name="partition">The caller's partition, kept with a learned template so a purge by partition removes it.</param>
     /// <param name="learningKey">The scope with the whole last user message left out (ScopeKey over the whole message).</param>
     public LocatedQuestion Locate(LaneOptions lane, string text, string learningKey, string partition)
     {
@@ -69,6 +72,9 @@ public sealed class QuestionFinder(IRewriteStore store, RewriteProxyOptions opti
     /// The question of a call whose extraction found the last user message (<paramref name="site"/>): narrowed by a
     /// learned template or a marker, with the scope and exact key that follow from how sure the location is.
     /// </summary>
+    /// <param name="lane">The lane called.</param>
+    /// <param name="site">The extractor's site: the whole last user message.</param>
+    /// <param name="partition">The caller's partition.</param>
     /// <param name="scopeOf">The call's scope key with a given site as its question (ScopeKey.Compute over the call).</param>
     public LaneQuestion Resolve(LaneOptions lane, QuestionSite site, string partition, Func<QuestionSite, string> scopeOf)
     {
@@ -119,8 +125,8 @@ public sealed class QuestionFinder(IRewriteStore store, RewriteProxyOptions opti
 /// whole-message entries never meet a located question's lookup.</param>
 /// <param name="Normalized">The exact-lookup key: the question's normal form, or the whole message's when unlocated.</param>
 /// <param name="EarlierScope">For calls located by a template or marker: the unlocated scope that the same message
-/// had before its template was learned, and <paramref name="WholeNormalized"/> its exact key there, so a repeat
-/// still hits exactly.</param>
+/// had before its template was learned, so a repeat still hits exactly.</param>
+/// <param name="WholeNormalized">The whole message's exact key in <paramref name="EarlierScope"/>.</param>
 public sealed record LaneQuestion(QuestionSite Site, string Source, bool Confident, string Scope, string Normalized,
     string? EarlierScope = null, string? WholeNormalized = null)
 {

@@ -1,6 +1,8 @@
 namespace RewriteProxy.Lanes;
 
 /// <summary>Where the question is in the last user message, how it was found, and whether the lane may trust it.</summary>
+/// <param name="Start">Where the question starts in the message.</param>
+/// <param name="Length">Its length in characters.</param>
 /// <param name="Source">A <see cref="QuestionSource"/> word.</param>
 /// <param name="Confident">"Located with confidence": the lane flow may look up semantically and enforce the drift
 /// guard. When false the span is a best guess, used only to measure drift.</param>

@@ -24,6 +24,9 @@ public static class QuestionSource
 }
 
 /// <summary>A question span found by a marker, or a best guess.</summary>
+/// <param name="Start">Where the span starts in the message.</param>
+/// <param name="Length">Its length in characters.</param>
+/// <param name="Source">A <see cref="QuestionSource"/> word: which recogniser found it.</param>
 /// <param name="Confident">True when the marker leaves no doubt (one label, one delimited block, one quoted question);
 /// false for a best guess, which the lane flow treats as unlocated.</param>
 public sealed record MarkedQuestion(int Start, int Length, string Source, bool Confident);

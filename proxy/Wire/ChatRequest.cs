@@ -13,6 +13,7 @@ public sealed class ChatRequest
     public bool IncludeUsage { get; init; }
 
     /// <summary>Parses and checks the shape the proxy relies on; a bad body is a <see cref="ChatRequestException"/> (400).</summary>
+    /// <param name="utf8">The request body.</param>
     /// <param name="pathModel">The model named by the path (an Azure OpenAI deployment), used when the body names none.</param>
     public static ChatRequest Parse(ReadOnlySpan<byte> utf8, string? pathModel = null)
     {

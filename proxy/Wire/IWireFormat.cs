@@ -17,6 +17,7 @@ public interface IWireFormat
     IReadOnlyList<string> ScopeHeaders { get; }
 
     /// <summary>Reads a request body; a body the proxy cannot read is a <see cref="ChatRequestException"/> (400).</summary>
+    /// <param name="utf8">The request body.</param>
     /// <param name="pathModel">The model named by the path (an Azure OpenAI deployment), used when the body names none.</param>
     LaneRequest Read(ReadOnlySpan<byte> utf8, string? pathModel);
 

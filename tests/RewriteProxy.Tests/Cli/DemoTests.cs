@@ -32,7 +32,7 @@ public sealed class DemoTests
         // prometheus-net's own exporter, not the demo's scrape of /metrics: a second reading of the same counters.
         using var buffer = new MemoryStream();
         await Metrics.DefaultRegistry.CollectAndExportAsTextAsync(buffer);
-        var snapshot = MetricsSnapshot.Parse(Encoding.UTF8.GetString(buffer.ToArray()));
+        var snapshot = MetricsExposition.Parse(Encoding.UTF8.GetString(buffer.ToArray()));
         var found = new Dictionary<(string, string), double>();
         foreach (var lane in DemoWorkload.Lanes)
             foreach (var (result, value) in snapshot.SumBy("rewriteproxy_lookups_total", "result", ("lane", lane)))

@@ -33,7 +33,7 @@ public sealed class QuestionLocationLaneTests : IAsyncLifetime
     });
 
     static Task<LaneReply> AskAsync(TestProxy proxy, string lane, string userMessage, string? system = null) =>
-        proxy.PostLaneAsync(lane, LaneCalls.Request(userMessage, system: system));
+        proxy.Client.PostLaneAsync(lane, LaneCalls.Request(userMessage, system: system));
 
     static async Task<JsonNode> StatsAsync(TestProxy proxy)
     {

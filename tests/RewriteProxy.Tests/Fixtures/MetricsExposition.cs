@@ -1,7 +1,7 @@
 using System.Globalization;
 using System.Text;
 
-namespace RewriteProxy.Tests.Telemetry;
+namespace RewriteProxy.Tests.Fixtures;
 
 /// <summary>One sample line of a scrape.</summary>
 public sealed record MetricSample(string Name, IReadOnlyDictionary<string, string> Labels, double Value);
@@ -25,6 +25,9 @@ public sealed class MetricsExposition
         Samples = samples;
         Types = types;
     }
+
+    /// <summary>GET /metrics of a proxy, parsed.</summary>
+    public static async Task<MetricsExposition> ScrapeAsync(HttpClient client) => Parse(await client.GetStringAsync("/metrics"));
 
     public static MetricsExposition Parse(string text)
     {
@@ -95,6 +98,11 @@ public sealed class MetricsExposition
 
     /// <summary>Sum over <see cref="Find"/>; 0 when no sample matches (a series not yet created has counted nothing).</summary>
     public double Sum(string name, params (string Label, string Value)[] labels) => Find(name, labels).Sum(s => s.Value);
+
+    /// <summary>Per value of <paramref name="by"/>, the sum of the matching samples of <paramref name="name"/>.</summary>
+    public Dictionary<string, double> SumBy(string name, string by, params (string Label, string Value)[] labels) =>
+        Find(name, labels).Where(s => s.Labels.ContainsKey(by)).GroupBy(s => s.Labels[by])
+            .ToDictionary(g => g.Key, g => g.Sum(s => s.Value), StringComparer.Ordinal);
 
     /// <summary>The families of one prefix, re-serialised with their HELP and TYPE lines: for a lint pass over our own series only.</summary>
     public string OnlyFamilies(string prefix)

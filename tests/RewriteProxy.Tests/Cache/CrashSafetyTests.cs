@@ -3,7 +3,7 @@ using System.Text.Json;
 using Microsoft.Data.Sqlite;
 using RewriteProxy.Tests.Fixtures;
 
-namespace RewriteProxy.Tests.Hardening;
+namespace RewriteProxy.Tests.Cache;
 
 /// <summary>
 /// kill -9 of the real proxy process while lane misses are in flight. SQLite in WAL mode promises that a committed
@@ -12,8 +12,11 @@ namespace RewriteProxy.Tests.Hardening;
 /// So after the crash: the file passes PRAGMA integrity_check, and every answer a client received is in the store,
 /// whole, with exactly the content the client saw.
 /// </summary>
-public sealed class CrashSafetyTests
+public sealed class CrashSafetyTests : UpstreamAndProxy
 {
+    /// <summary>Each test starts the proxy it needs.</summary>
+    protected override bool StartsProxy => false;
+
     const int Questions = 100;
     const int Concurrency = 8;
     /// <summary>Kill once about half the answers have arrived: the rest are in flight or not yet sent.</summary>
@@ -24,16 +27,15 @@ public sealed class CrashSafetyTests
     [Fact]
     public async Task Kill_9_during_lane_misses_leaves_an_intact_store_holding_every_answered_entry()
     {
-        await using var upstream = await ScriptedUpstream.StartAsync();
         // Each answer is long and distinct so a half-written or mixed-up entry would show.
-        upstream.Completion = r => "A draft answer: " + ScriptedUpstream.LastUserText(r) + " " + string.Join(' ', Enumerable.Repeat("detail", 200));
-        upstream.Delay = TimeSpan.FromMilliseconds(30);
+        Upstream.Completion = r => ScriptedUpstream.DraftAnswer(r) + " " + string.Join(' ', Enumerable.Repeat("detail", 200));
+        Upstream.Delay = TimeSpan.FromMilliseconds(30);
         var storePath = TestProxy.NewStorePath();
         var settings = new Dictionary<string, string> { ["Lanes:draft:MaxDrift"] = "2", ["Logging:LogLevel:Default"] = "Warning" };
 
         var answered = new ConcurrentDictionary<string, string>();
         var failures = 0;
-        await using (var proxy = await ProxyProcess.StartAsync(upstream.BaseUrl, storePath, settings))
+        await using (var proxy = await ProxyProcess.StartAsync(Upstream.BaseUrl, storePath, settings))
         {
             using var gate = new SemaphoreSlim(Concurrency);
             var killed = 0;
@@ -63,7 +65,7 @@ public sealed class CrashSafetyTests
         Assert.True(failures > 0, "no call was in flight at the kill");
 
         // Restart on the same file: it opens (the proxy runs quick_check at start) and serves what was answered.
-        await using (var restarted = await ProxyProcess.StartAsync(upstream.BaseUrl, storePath, settings))
+        await using (var restarted = await ProxyProcess.StartAsync(Upstream.BaseUrl, storePath, settings))
         {
             var (question, content) = answered.First();
             var hit = await restarted.Client.AskAsync("draft", question);

@@ -6,15 +6,22 @@ using System.Text.Json.Nodes;
 using Microsoft.AspNetCore.Http;
 using RewriteProxy.Tests.Fixtures;
 
-namespace RewriteProxy.Tests.Hardening;
+namespace RewriteProxy.Tests.Lanes;
 
 /// <summary>
 /// A bounded, seeded mutation fuzz of lane requests: valid requests with bytes flipped, inserted and deleted, JSON
 /// values swapped for other types, fields dropped, huge numbers and odd unicode. Every answer must be one of the
 /// statuses of the contract (design.md "Errors") with an OpenAI-shaped body on errors; never a 500, never a hang.
 /// </summary>
-public sealed class LaneFuzzTests : IAsyncLifetime
+public sealed class LaneFuzzTests : UpstreamAndProxy
 {
+    protected override IDictionary<string, string?> Settings => new Dictionary<string, string?> { ["Limits:MaxRequestBytes"] = "16384" };
+
+    // Whatever was forwarded, the upstream answers a plain completion: the proxy is under test, not the fixture.
+    protected override void Script(ScriptedUpstream upstream) =>
+        upstream.Handler = (context, _) => context.Response.WriteAsJsonAsync(
+            ScriptedUpstream.Completed("scripted-model", "How do I renew a library card online?\nWhere can I renew a library card?"));
+
     const int Seed = 20240917;
     const int Cases = 2_000;
     /// <summary>Per request: far above a normal call's tens of milliseconds, far below a hang.</summary>
@@ -23,27 +30,6 @@ public sealed class LaneFuzzTests : IAsyncLifetime
     static readonly HashSet<int> Allowed = [200, 400, 404, 413, 422, 502];
     /// <summary>Failures quoted in the message; the rest are counted.</summary>
     const int Quoted = 8;
-
-    ScriptedUpstream _upstream = null!;
-    TestProxy _proxy = null!;
-
-    public async Task InitializeAsync()
-    {
-        _upstream = await ScriptedUpstream.StartAsync();
-        // Whatever was forwarded, the upstream answers a plain completion: the proxy is under test, not the fixture.
-        _upstream.Handler = (context, _) => context.Response.WriteAsJsonAsync(
-            ScriptedUpstream.Completed("scripted-model", "How do I renew a library card online?\nWhere can I renew a library card?"));
-        _proxy = await TestProxy.StartAsync(_upstream.BaseUrl, new Dictionary<string, string?>
-        {
-            ["Limits:MaxRequestBytes"] = "16384",
-        });
-    }
-
-    public async Task DisposeAsync()
-    {
-        await _proxy.DisposeAsync();
-        await _upstream.DisposeAsync();
-    }
 
     static readonly JsonObject[] Seeds =
     [
@@ -75,7 +61,7 @@ public sealed class LaneFuzzTests : IAsyncLifetime
         }
         var took = watch.Elapsed;
 
-        var normal = await _proxy.AskAsync("draft", "Is the proxy still answering after the fuzz?");
+        var normal = await Proxy.AskAsync("draft", "Is the proxy still answering after the fuzz?");
         Assert.Equal(200, normal.Status);
         var summary = $"{Cases} cases in {took.TotalSeconds:0.0} s; statuses {string.Join(", ", statuses.OrderBy(s => s.Key).Select(s => $"{s.Key}×{s.Value}"))}";
         Assert.True(failures.Count == 0, $"{summary}; {failures.Count} broke the contract:\n" + string.Join("\n", failures.Take(Quoted)));
@@ -89,7 +75,7 @@ public sealed class LaneFuzzTests : IAsyncLifetime
         using var cancel = new CancellationTokenSource(PerRequest);
         try
         {
-            using var response = await _proxy.Client.SendAsync(request, cancel.Token);
+            using var response = await Proxy.Client.SendAsync(request, cancel.Token);
             var status = (int)response.StatusCode;
             var text = await response.Content.ReadAsStringAsync(cancel.Token);
             if (!Allowed.Contains(status)) return (status, "status outside the contract");

@@ -3,32 +3,27 @@ using RewriteProxy.Cache;
 using RewriteProxy.Embedding;
 using RewriteProxy.Tests.Fixtures;
 
-namespace RewriteProxy.Tests.Hardening;
+namespace RewriteProxy.Tests.Cache;
 
 /// <summary>
 /// The cache side failing under a running proxy in ways Lanes/LaneStoreTests does not cover: the disk filling up, and
 /// the embedder throwing. design.md: such a failure never fails the request; the call is answered uncached and counted
 /// in rewriteproxy_fail_open_total.
 /// </summary>
-public sealed class CacheFailureTests : IAsyncLifetime
+public sealed class CacheFailureTests : UpstreamAndProxy
 {
+    protected override bool StartsProxy => false;
+
+    protected override void Script(ScriptedUpstream upstream) => upstream.Completion = ScriptedUpstream.DraftAnswer;
+
     const string FailOpen = "rewriteproxy_fail_open_total";
-    ScriptedUpstream _upstream = null!;
-
-    public async Task InitializeAsync()
-    {
-        _upstream = await ScriptedUpstream.StartAsync();
-        _upstream.Completion = r => "A draft answer: " + ScriptedUpstream.LastUserText(r);
-    }
-
-    public async Task DisposeAsync() => await _upstream.DisposeAsync();
 
     [Fact]
     public async Task A_full_disk_fails_open_counted_and_caching_resumes_once_space_is_freed()
     {
         using var mount = TmpfsMount.Create("2m");
         var storePath = Path.Combine(mount.Path, "store", "cache.db");
-        await using var proxy = await TestProxy.StartAsync(_upstream.BaseUrl, new Dictionary<string, string?>
+        await using var proxy = await StartProxyAsync(new Dictionary<string, string?>
         {
             ["Store:Path"] = storePath,
             ["Lanes:draft:MaxDrift"] = "0.9",
@@ -37,7 +32,7 @@ public sealed class CacheFailureTests : IAsyncLifetime
 
         var filler = Path.Combine(mount.Path, "filler.bin");
         FillUntilFull(filler);
-        var before = await Wire.CounterAsync(proxy.Client, FailOpen, "reason=\"store\"");
+        var before = (await MetricsExposition.ScrapeAsync(proxy.Client)).Sum(FailOpen, ("reason", "store"));
         var questions = Enumerable.Range(1, 5).Select(i => $"How long is the waiting list for allotment plot {i}?").ToArray();
         var during = new List<LaneReply>();
         foreach (var q in questions)
@@ -45,7 +40,7 @@ public sealed class CacheFailureTests : IAsyncLifetime
             during.Add(await proxy.AskAsync("draft", q));
             during.Add(await proxy.AskAsync("draft", q));
         }
-        var after = await Wire.CounterAsync(proxy.Client, FailOpen, "reason=\"store\"");
+        var after = (await MetricsExposition.ScrapeAsync(proxy.Client)).Sum(FailOpen, ("reason", "store"));
 
         Assert.All(during, r => Assert.Equal(200, r.Status));
         Assert.All(during, r => Assert.StartsWith("A draft answer: How long", r.Content));
@@ -85,16 +80,16 @@ public sealed class CacheFailureTests : IAsyncLifetime
     public async Task A_throwing_embedder_fails_open_uncached_and_counted_on_lookup_and_on_the_guard()
     {
         var embedder = new FaultyEmbedder(SharedEmbedder.Instance);
-        await using var proxy = await TestProxy.StartAsync(_upstream.BaseUrl,
+        await using var proxy = await StartProxyAsync(
             new Dictionary<string, string?> { ["Lanes:draft:MaxDrift"] = "0.9" },
             services => services.AddSingleton<IEmbedder>(embedder));
         const string question = "Can I bring a guest to the climbing wall?";
 
         embedder.Fail = FaultyEmbedder.Mode.Always;
-        var before = await Wire.CounterAsync(proxy.Client, FailOpen, "reason=\"embedder\"");
+        var before = (await MetricsExposition.ScrapeAsync(proxy.Client)).Sum(FailOpen, ("reason", "embedder"));
         var lookup1 = await proxy.AskAsync("draft", question);
         var lookup2 = await proxy.AskAsync("draft", question);
-        var afterLookup = await Wire.CounterAsync(proxy.Client, FailOpen, "reason=\"embedder\"");
+        var afterLookup = (await MetricsExposition.ScrapeAsync(proxy.Client)).Sum(FailOpen, ("reason", "embedder"));
 
         Assert.Equal([200, 200], new[] { lookup1.Status, lookup2.Status });
         Assert.Equal(["bypass", "bypass"], new[] { lookup1.Cache, lookup2.Cache });
@@ -106,7 +101,7 @@ public sealed class CacheFailureTests : IAsyncLifetime
         embedder.Fail = FaultyEmbedder.Mode.Rewrites;
         var guard1 = await proxy.AskAsync("draft", question);
         var guard2 = await proxy.AskAsync("draft", question);
-        var afterGuard = await Wire.CounterAsync(proxy.Client, FailOpen, "reason=\"embedder\"");
+        var afterGuard = (await MetricsExposition.ScrapeAsync(proxy.Client)).Sum(FailOpen, ("reason", "embedder"));
 
         Assert.Equal([200, 200], new[] { guard1.Status, guard2.Status });
         Assert.Equal("miss", guard2.Cache); // nothing unguarded was stored
@@ -117,7 +112,7 @@ public sealed class CacheFailureTests : IAsyncLifetime
         embedder.Fail = FaultyEmbedder.Mode.Never;
         Assert.Equal("miss", (await proxy.AskAsync("draft", question)).Cache);
         Assert.Equal("hit-exact", (await proxy.AskAsync("draft", question)).Cache);
-        Assert.Equal(5, _upstream.ChatCalls); // two bypasses, two unguarded misses, one stored miss
+        Assert.Equal(5, Upstream.ChatCalls); // two bypasses, two unguarded misses, one stored miss
     }
 
     /// <summary>The real model, made to throw on demand the way a broken ONNX session does.</summary>

@@ -3,14 +3,17 @@ using System.Text;
 using RewriteProxy.Tests.Fixtures;
 using Xunit.Abstractions;
 
-namespace RewriteProxy.Tests.Hardening;
+namespace RewriteProxy.Tests.Hosting;
 
 /// <summary>
 /// The short soak: about a minute of mixed traffic against the real proxy process, watching its resident memory.
 /// A leak per request shows as steady RSS growth once the bounded caches are full; a bounded cache does not.
 /// </summary>
-public sealed class SoakTests(ITestOutputHelper output)
+public sealed class SoakTests(ITestOutputHelper output) : UpstreamAndProxy
 {
+    /// <summary>Each test starts the proxy it needs.</summary>
+    protected override bool StartsProxy => false;
+
     static readonly TimeSpan Duration = TimeSpan.FromSeconds(60);
     /// <summary>
     /// Long enough that every bounded structure is full before the first sample: the test asserts that more distinct
@@ -33,10 +36,9 @@ public sealed class SoakTests(ITestOutputHelper output)
     [Trait("Category", "Soak")]
     public async Task A_minute_of_mixed_traffic_holds_memory_flat_after_warm_up_with_no_5xx()
     {
-        await using var upstream = await ScriptedUpstream.StartAsync();
-        upstream.Completion = r => "A draft answer: " + ScriptedUpstream.LastUserText(r) +
+        Upstream.Completion = r => ScriptedUpstream.DraftAnswer(r) +
             "\nHow else could one ask: " + ScriptedUpstream.LastUserText(r);
-        await using var proxy = await ProxyProcess.StartAsync(upstream.BaseUrl, TestProxy.NewStorePath(), new Dictionary<string, string>
+        await using var proxy = await ProxyProcess.StartAsync(Upstream.BaseUrl, TestProxy.NewStorePath(), new Dictionary<string, string>
         {
             ["Lanes:draft:MaxDrift"] = "2",
             ["Lanes:siblings:Candidates"] = "lines",

@@ -7,23 +7,17 @@ using System.Text.Json.Nodes;
 using Microsoft.AspNetCore.Http;
 using RewriteProxy.Tests.Fixtures;
 
-namespace RewriteProxy.Tests.Hardening;
+namespace RewriteProxy.Tests.Hosting;
 
 /// <summary>
 /// Tenant isolation under load, the admin API's door, credentials kept out of every file and log, an upstream
 /// destination no request can redirect, and the size limits on requests and upstream answers.
 /// </summary>
-public sealed class SecurityTests : IAsyncLifetime
+public sealed class SecurityTests : UpstreamAndProxy
 {
-    ScriptedUpstream _upstream = null!;
+    protected override bool StartsProxy => false;
 
-    public async Task InitializeAsync()
-    {
-        _upstream = await ScriptedUpstream.StartAsync();
-        _upstream.Completion = r => "A draft answer: " + ScriptedUpstream.LastUserText(r);
-    }
-
-    public async Task DisposeAsync() => await _upstream.DisposeAsync();
+    protected override void Script(ScriptedUpstream upstream) => upstream.Completion = ScriptedUpstream.DraftAnswer;
 
     /// <summary>A tag the upstream derives from the credential it was sent: it shows whose call produced an answer.</summary>
     static string TagOf(string authorization) => "tenant-tag-" + Convert.ToHexStringLower(SHA256.HashData(Encoding.UTF8.GetBytes(authorization)))[..10];
@@ -31,14 +25,14 @@ public sealed class SecurityTests : IAsyncLifetime
     [Fact]
     public async Task Twenty_tenants_asking_the_same_questions_at_once_never_get_each_others_answers()
     {
-        _upstream.Handler = async (context, recorded) =>
+        Upstream.Handler = async (context, recorded) =>
         {
             await Task.Delay(20);
             var tag = TagOf(recorded.Headers.GetValueOrDefault("Authorization") ?? "");
             var question = ScriptedUpstream.LastUserText(recorded.Json!);
             await context.Response.WriteAsJsonAsync(ScriptedUpstream.Completed("scripted-model", $"A draft answer: {question} [{tag}]"));
         };
-        await using var proxy = await TestProxy.StartAsync(_upstream.BaseUrl, new Dictionary<string, string?> { ["Lanes:draft:MaxDrift"] = "2" });
+        await using var proxy = await StartProxyAsync(new Dictionary<string, string?> { ["Lanes:draft:MaxDrift"] = "2" });
         var tenants = Enumerable.Range(0, 20).Select(i => $"sk-tenant-{i:00}-{Guid.NewGuid():N}").ToArray();
         string[] questions =
         [
@@ -61,15 +55,15 @@ public sealed class SecurityTests : IAsyncLifetime
                 if (round == 1) Assert.Equal("hit-exact", reply.Cache);
             }
         }
-        Assert.Equal(tenants.Length * questions.Length, _upstream.ChatCalls);
+        Assert.Equal(tenants.Length * questions.Length, Upstream.ChatCalls);
     }
 
     [Fact]
     public async Task Admin_api_is_401_without_or_with_a_wrong_token_and_404_when_no_token_is_set()
     {
         const string token = "admin-token-0123456789abcdef";
-        await using var on = await TestProxy.StartAsync(_upstream.BaseUrl, new Dictionary<string, string?> { ["Admin:Token"] = token });
-        await using var off = await TestProxy.StartAsync(_upstream.BaseUrl);
+        await using var on = await StartProxyAsync(new Dictionary<string, string?> { ["Admin:Token"] = token });
+        await using var off = await StartProxyAsync();
 
         foreach (var path in new[] { "/admin/stats", "/admin/entries" })
         {
@@ -85,13 +79,13 @@ public sealed class SecurityTests : IAsyncLifetime
         }
         using var purge = await SendAsync(on, HttpMethod.Post, "/admin/purge", "wrong");
         Assert.Equal(HttpStatusCode.Unauthorized, purge.StatusCode);
-        Assert.Empty(_upstream.Requests);
+        Assert.Empty(Upstream.Requests);
     }
 
     [Fact]
     public async Task Admin_401_names_the_bearer_scheme()
     {
-        await using var on = await TestProxy.StartAsync(_upstream.BaseUrl,
+        await using var on = await StartProxyAsync(
             new Dictionary<string, string?> { ["Admin:Token"] = "admin-token-0123456789abcdef" });
         using var response = await SendAsync(on, HttpMethod.Get, "/admin/stats", "wrong");
 
@@ -118,7 +112,7 @@ public sealed class SecurityTests : IAsyncLifetime
         const string adminToken = "admin-canary-0123456789abcdef0123";
         var storePath = TestProxy.NewStorePath();
         // Debug level: more is logged than the shipped Information level, so more places a credential could leak.
-        await using var proxy = await ProxyProcess.StartAsync(_upstream.BaseUrl, storePath, new Dictionary<string, string>
+        await using var proxy = await ProxyProcess.StartAsync(Upstream.BaseUrl, storePath, new Dictionary<string, string>
         {
             ["Admin:Token"] = adminToken,
             ["Lanes:draft:MaxDrift"] = "2",
@@ -148,9 +142,9 @@ public sealed class SecurityTests : IAsyncLifetime
             request.Headers.Authorization = new AuthenticationHeaderValue("Bearer", credential);
             (await client.SendAsync(request)).Dispose();
         }
-        _upstream.Handler = (context, _) => { context.Response.StatusCode = 401; return context.Response.WriteAsync("{\"error\":{\"message\":\"bad key\"}}"); };
+        Upstream.Handler = (context, _) => { context.Response.StatusCode = 401; return context.Response.WriteAsync("{\"error\":{\"message\":\"bad key\"}}"); };
         await client.AskAsync("draft", "Is the museum open at night?", credential);
-        _upstream.Handler = null;
+        Upstream.Handler = null;
         using (var request = new HttpRequestMessage(HttpMethod.Get, "/admin/entries?limit=5"))
         {
             request.Headers.Authorization = new AuthenticationHeaderValue("Bearer", adminToken);
@@ -164,7 +158,7 @@ public sealed class SecurityTests : IAsyncLifetime
             (await client.SendAsync(request)).Dispose();
         }
         // Stop by SIGKILL with the WAL still in place: the -wal file is read as it was left.
-        Assert.True(_upstream.ChatCalls >= 5);
+        Assert.True(Upstream.ChatCalls >= 5);
         await Task.Delay(1500); // let the background writer commit events and hit counts
         proxy.Kill();
 
@@ -186,7 +180,7 @@ public sealed class SecurityTests : IAsyncLifetime
     public async Task No_host_header_forwarded_host_absolute_uri_or_path_trick_sends_traffic_elsewhere()
     {
         await using var evil = await ScriptedUpstream.StartAsync();
-        await using var proxy = await TestProxy.StartAsync(_upstream.BaseUrl, new Dictionary<string, string?> { ["Lanes:draft:MaxDrift"] = "2" });
+        await using var proxy = await StartProxyAsync(new Dictionary<string, string?> { ["Lanes:draft:MaxDrift"] = "2" });
         var evilHost = evil.Root.Authority;
         // A distinct question per lane call, so that each is a miss that must reach an upstream.
         var n = 0;
@@ -207,13 +201,13 @@ public sealed class SecurityTests : IAsyncLifetime
 
         foreach (var request in raw)
         {
-            var before = _upstream.Requests.Count;
+            var before = Upstream.Requests.Count;
             var reply = await SendRawAsync(proxy.Root.Port, request);
             var status = int.Parse(reply.Split(' ', 3)[1]);
-            if (_upstream.Requests.Count > before)
+            if (Upstream.Requests.Count > before)
             {
-                var seen = _upstream.Requests.Last();
-                Assert.Equal(_upstream.Root.Authority, seen.Headers["Host"]);
+                var seen = Upstream.Requests.Last();
+                Assert.Equal(Upstream.Root.Authority, seen.Headers["Host"]);
                 Assert.StartsWith("/v1/", seen.Path);
             }
             else
@@ -222,7 +216,7 @@ public sealed class SecurityTests : IAsyncLifetime
             }
         }
         Assert.Empty(evil.Requests);
-        Assert.True(_upstream.Requests.Count >= 5, $"only {_upstream.Requests.Count} of the requests were forwarded at all");
+        Assert.True(Upstream.Requests.Count >= 5, $"only {Upstream.Requests.Count} of the requests were forwarded at all");
     }
 
     static string Post(string target, string host, string json, string extra = "") =>
@@ -244,7 +238,7 @@ public sealed class SecurityTests : IAsyncLifetime
     [Fact]
     public async Task Passthrough_body_over_max_passthrough_bytes_is_413()
     {
-        await using var proxy = await TestProxy.StartAsync(_upstream.BaseUrl, new Dictionary<string, string?> { ["Limits:MaxPassthroughBytes"] = "65536" });
+        await using var proxy = await StartProxyAsync(new Dictionary<string, string?> { ["Limits:MaxPassthroughBytes"] = "65536" });
         foreach (var chunked in new[] { false, true })
         {
             var body = new byte[100_000];
@@ -265,20 +259,20 @@ public sealed class SecurityTests : IAsyncLifetime
     {
         const string question = "How long may a boat stay at the visitor pontoon?";
         var big = ScriptedUpstream.Completed("scripted-model", "A draft answer: " + question + new string('.', 20_000)).ToJsonString();
-        _upstream.Handler = async (context, _) =>
+        Upstream.Handler = async (context, _) =>
         {
             context.Response.ContentType = "application/json";
             if (!chunked) context.Response.ContentLength = Encoding.UTF8.GetByteCount(big);
             await context.Response.WriteAsync(big);
         };
-        await using var proxy = await TestProxy.StartAsync(_upstream.BaseUrl, new Dictionary<string, string?>
+        await using var proxy = await StartProxyAsync(new Dictionary<string, string?>
         {
             ["Limits:MaxResponseBytes"] = "8192",
             ["Lanes:draft:MaxDrift"] = "2",
         });
 
         var first = await proxy.AskAsync("draft", question);
-        _upstream.Handler = null;
+        Upstream.Handler = null;
         var second = await proxy.AskAsync("draft", question);
 
         Assert.Equal(502, first.Status);

@@ -6,14 +6,22 @@ using Microsoft.Extensions.DependencyInjection;
 using RewriteProxy.Cache;
 using RewriteProxy.Tests.Fixtures;
 
-namespace RewriteProxy.Tests.Hardening;
+namespace RewriteProxy.Tests.Lanes;
 
 /// <summary>
 /// What clients and upstreams may send that the proxy must survive: wrong types, deep nesting, invalid UTF-8, bodies
 /// at the size limit, tool traffic, and absurd completions. Never a 500, never a poisoned entry.
 /// </summary>
-public sealed class BadInputTests : IAsyncLifetime
+public sealed class BadInputTests : UpstreamAndProxy
 {
+    protected override IDictionary<string, string?> Settings => new Dictionary<string, string?>
+    {
+        ["Limits:MaxRequestBytes"] = MaxRequestBytes.ToString(),
+        ["Lanes:draft:MaxDrift"] = "0.9",
+    };
+
+    protected override void Script(ScriptedUpstream upstream) => upstream.Completion = ScriptedUpstream.DraftAnswer;
+
     /// <summary>Small, so "just under" and "over" bodies stay cheap; OptionsReader's floor is 1024.</summary>
     const int MaxRequestBytes = 64 * 1024;
     /// <summary>
@@ -22,31 +30,11 @@ public sealed class BadInputTests : IAsyncLifetime
     /// </summary>
     static readonly TimeSpan AbsurdCompletionBudget = TimeSpan.FromSeconds(30);
 
-    ScriptedUpstream _upstream = null!;
-    TestProxy _proxy = null!;
-
-    public async Task InitializeAsync()
-    {
-        _upstream = await ScriptedUpstream.StartAsync();
-        _upstream.Completion = r => "A draft answer: " + ScriptedUpstream.LastUserText(r);
-        _proxy = await TestProxy.StartAsync(_upstream.BaseUrl, new Dictionary<string, string?>
-        {
-            ["Limits:MaxRequestBytes"] = MaxRequestBytes.ToString(),
-            ["Lanes:draft:MaxDrift"] = "0.9",
-        });
-    }
-
-    public async Task DisposeAsync()
-    {
-        await _proxy.DisposeAsync();
-        await _upstream.DisposeAsync();
-    }
-
     async Task<HttpResponseMessage> PostRawAsync(byte[] body, bool chunked = false)
     {
         HttpContent content = chunked ? new StreamContent(new NonSeekable(body)) : new ByteArrayContent(body);
         content.Headers.ContentType = new MediaTypeHeaderValue("application/json");
-        return await _proxy.Client.PostAsync("/lane/draft/v1/chat/completions", content);
+        return await Proxy.Client.PostAsync("/lane/draft/v1/chat/completions", content);
     }
 
     async Task AssertErrorAsync(HttpResponseMessage response, int status, string code)
@@ -70,7 +58,7 @@ public sealed class BadInputTests : IAsyncLifetime
         using var response = await PostRawAsync(Encoding.UTF8.GetBytes(json));
 
         await AssertErrorAsync(response, 400, "invalid_request");
-        Assert.Empty(_upstream.Requests);
+        Assert.Empty(Upstream.Requests);
     }
 
     [Theory]
@@ -120,7 +108,7 @@ public sealed class BadInputTests : IAsyncLifetime
         using var response = await PostRawAsync(Encoding.UTF8.GetBytes(json));
 
         await AssertErrorAsync(response, 400, "invalid_request");
-        Assert.Equal(200, (await _proxy.AskAsync("draft", "Is the proxy still up after deep nesting?")).Status);
+        Assert.Equal(200, (await Proxy.AskAsync("draft", "Is the proxy still up after deep nesting?")).Status);
     }
 
     [Theory]
@@ -135,7 +123,7 @@ public sealed class BadInputTests : IAsyncLifetime
         using var response = await PostRawAsync([.. before, .. bad, .. after]);
 
         await AssertErrorAsync(response, 400, "invalid_request");
-        Assert.Empty(_upstream.Requests);
+        Assert.Empty(Upstream.Requests);
     }
 
     [Theory]
@@ -160,7 +148,7 @@ public sealed class BadInputTests : IAsyncLifetime
 
         Assert.Equal(200, (int)under.StatusCode);
         await AssertErrorAsync(over, 413, "request_too_large");
-        Assert.Single(_upstream.Requests);
+        Assert.Single(Upstream.Requests);
     }
 
     [Fact]
@@ -174,13 +162,13 @@ public sealed class BadInputTests : IAsyncLifetime
               {"role":"user","content":"And at six?"}]}
             """)!.AsObject();
 
-        var first = await _proxy.PostLaneAsync("draft", body);
-        var second = await _proxy.PostLaneAsync("draft", body);
+        var first = await Proxy.Client.PostLaneAsync("draft", body);
+        var second = await Proxy.Client.PostLaneAsync("draft", body);
 
         Assert.Equal(["bypass", "bypass"], new[] { first.Cache, second.Cache });
         Assert.Equal("tools", first.Header("X-Rewrite-Bypass"));
-        Assert.Equal(2, _upstream.ChatCalls);
-        Assert.Equal(body.ToJsonString(), _upstream.Requests.Last().BodyText);
+        Assert.Equal(2, Upstream.ChatCalls);
+        Assert.Equal(body.ToJsonString(), Upstream.Requests.Last().BodyText);
     }
 
     [Fact]
@@ -196,16 +184,16 @@ public sealed class BadInputTests : IAsyncLifetime
             "Who do I contact to cancel a community kitchen booking?",
         ];
         var lines = Enumerable.Range(0, 10_000).Select(i => $"{i % 100 + 1}. {variants[i % variants.Length]}");
-        _upstream.Completion = _ => string.Join("\n", lines);
+        Upstream.Completion = _ => string.Join("\n", lines);
 
         var watch = Stopwatch.StartNew();
         using var budget = new CancellationTokenSource(AbsurdCompletionBudget);
-        var reply = await _proxy.Client.PostLaneAsync("siblings", LaneCalls.Request(question), cancel: budget.Token);
+        var reply = await Proxy.Client.PostLaneAsync("siblings", LaneCalls.Request(question), cancel: budget.Token);
         var took = watch.Elapsed;
 
         Assert.Equal(200, reply.Status);
         var kept = reply.Content.Split('\n');
-        Assert.InRange(kept.Length, 1, _proxy.Options.Lanes["siblings"].MaxSiblings);
+        Assert.InRange(kept.Length, 1, Proxy.Options.Lanes["siblings"].MaxSiblings);
         Assert.All(kept, k => Assert.Contains(k, variants));
         Assert.Equal(kept.Length, kept.Distinct().Count());
         Assert.True(took < AbsurdCompletionBudget, $"took {took}");
@@ -218,29 +206,32 @@ public sealed class BadInputTests : IAsyncLifetime
         const string question = "Which beaches allow dogs in summer?";
         var huge = "Which beaches allow dogs in summer " + string.Join(' ', Enumerable.Repeat("and", 1 << 18)) + "?";
         Assert.True(huge.Length > 1 << 20);
-        _upstream.Completion = _ => huge + "\nWhich beaches allow dogs during the summer season?";
+        Upstream.Completion = _ => huge + "\nWhich beaches allow dogs during the summer season?";
 
         var watch = Stopwatch.StartNew();
         using var budget = new CancellationTokenSource(AbsurdCompletionBudget);
-        var reply = await _proxy.Client.PostLaneAsync("siblings", LaneCalls.Request(question), cancel: budget.Token);
+        var reply = await Proxy.Client.PostLaneAsync("siblings", LaneCalls.Request(question), cancel: budget.Token);
         var took = watch.Elapsed;
 
         Assert.Equal(200, reply.Status);
         Assert.True(took < AbsurdCompletionBudget, $"took {took}");
+        // With the shipped model the huge line is kept and the near-copy of the question dropped, so something is
+        // always stored: the answer holds only lines that were sent, and the entry holds exactly the answer.
+        Assert.NotEmpty(reply.Content);
         var kept = reply.Content.Split('\n');
         Assert.All(kept, k => Assert.True(k == huge || k == "Which beaches allow dogs during the summer season?", "a line that was not sent"));
-        if (reply.Content.Length > 0) await AssertEntryIsAsync("siblings", question, reply.Content);
+        await AssertEntryIsAsync("siblings", question, reply.Content);
     }
 
     /// <summary>The stored entry (if any) holds exactly what the client was given; a hit repeats it.</summary>
     async Task AssertEntryIsAsync(string lane, string question, string content)
     {
-        var store = _proxy.Services.GetRequiredService<IRewriteStore>();
+        var store = Proxy.Services.GetRequiredService<IRewriteStore>();
         await store.FlushAsync(CancellationToken.None);
         var entries = ((SqliteRewriteStore)store).List(lane, null, null, 10);
         var entry = Assert.Single(entries, e => e.Question == question);
         Assert.Equal(content, entry.Content);
-        var hit = await _proxy.AskAsync(lane, question);
+        var hit = await Proxy.AskAsync(lane, question);
         Assert.Equal("hit-exact", hit.Cache);
         Assert.Equal(content, hit.Content);
     }

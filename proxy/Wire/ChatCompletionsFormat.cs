@@ -66,13 +66,7 @@ public sealed class ChatCompletionsFormat : IWireFormat
         return null;
     }
 
-    public byte[] UpstreamBody(LaneRequest request)
-    {
-        var copy = (JsonObject)request.Body.DeepClone();
-        copy.Remove("stream");
-        copy.Remove("stream_options");
-        return JsonSerializer.SerializeToUtf8Bytes(copy);
-    }
+    public byte[] UpstreamBody(LaneRequest request) => WireJson.WithoutStreaming(request.Body);
 
     public LaneAnswer ReadAnswer(ReadOnlySpan<byte> utf8)
     {

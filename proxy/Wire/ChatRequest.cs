@@ -49,15 +49,6 @@ public sealed class ChatRequest
             IncludeUsage = includeUsage,
         };
     }
-
-    /// <summary>The body to send upstream for a lane miss: never streamed (the proxy guards the whole answer first).</summary>
-    public byte[] UpstreamBody()
-    {
-        var copy = (JsonObject)Body.DeepClone();
-        copy.Remove("stream");
-        copy.Remove("stream_options");
-        return JsonSerializer.SerializeToUtf8Bytes(copy);
-    }
 }
 
 /// <summary>A client request the proxy cannot read; answered with 400 and this message.</summary>

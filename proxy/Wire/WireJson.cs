@@ -108,6 +108,18 @@ public static class WireJson
         _ => true,
     };
 
+    /// <summary>
+    /// The body a lane miss sends upstream: the client's own, less <c>stream</c> and <c>stream_options</c>, since the
+    /// proxy guards the whole answer before any of it goes out.
+    /// </summary>
+    public static byte[] WithoutStreaming(JsonObject body)
+    {
+        var copy = (JsonObject)body.DeepClone();
+        copy.Remove("stream");
+        copy.Remove("stream_options");
+        return JsonSerializer.SerializeToUtf8Bytes(copy);
+    }
+
     /// <summary>The body's fields less the named ones, deep-copied: the output-changing parameters of a scope.</summary>
     public static JsonObject Without(JsonObject body, IReadOnlySet<string> names)
     {

@@ -1,4 +1,3 @@
-using System.Text;
 using System.Text.Json.Nodes;
 using Microsoft.AspNetCore.Http;
 
@@ -14,18 +13,7 @@ public static class MessagesEvents
 {
     public static async Task WriteAsync(HttpContext context, JsonObject message)
     {
-        context.Response.StatusCode = StatusCodes.Status200OK;
-        context.Response.ContentType = "text/event-stream";
-        context.Response.Headers.CacheControl = "no-cache";
-
-        var buffer = new StringBuilder();
-        void Event(string type, JsonObject fields)
-        {
-            var data = new JsonObject { ["type"] = type };
-            foreach (var (k, v) in fields) data[k] = v?.DeepClone();
-            buffer.Append("event: ").Append(type).Append('\n').Append("data: ").Append(data.ToJsonString()).Append("\n\n");
-        }
-
+        var events = new EventStream();
         var usage = message["usage"] as JsonObject ?? [];
         var start = (JsonObject)message.DeepClone();
         start["content"] = new JsonArray();
@@ -34,26 +22,26 @@ public static class MessagesEvents
         var startUsage = (JsonObject)usage.DeepClone();
         startUsage["output_tokens"] = 0;
         start["usage"] = startUsage;
-        Event("message_start", new JsonObject { ["message"] = start });
+        events.Add("message_start", new JsonObject { ["message"] = start });
 
         var blocks = message["content"] as JsonArray ?? [];
         for (var index = 0; index < blocks.Count; index++)
         {
             var text = WireJson.String(blocks[index]?["text"]) ?? "";
-            Event("content_block_start", new JsonObject
+            events.Add("content_block_start", new JsonObject
             {
                 ["index"] = index,
                 ["content_block"] = new JsonObject { ["type"] = "text", ["text"] = "" },
             });
             foreach (var piece in CompletionWriter.Pieces(text))
-                Event("content_block_delta", new JsonObject
+                events.Add("content_block_delta", new JsonObject
                 {
                     ["index"] = index,
                     ["delta"] = new JsonObject { ["type"] = "text_delta", ["text"] = piece },
                 });
-            Event("content_block_stop", new JsonObject { ["index"] = index });
+            events.Add("content_block_stop", new JsonObject { ["index"] = index });
         }
-        Event("message_delta", new JsonObject
+        events.Add("message_delta", new JsonObject
         {
             ["delta"] = new JsonObject
             {
@@ -62,7 +50,7 @@ public static class MessagesEvents
             },
             ["usage"] = new JsonObject { ["output_tokens"] = WireJson.Int(usage["output_tokens"]) },
         });
-        Event("message_stop", []);
-        await context.Response.WriteAsync(buffer.ToString(), context.RequestAborted);
+        events.Add("message_stop", []);
+        await events.WriteAsync(context);
     }
 }

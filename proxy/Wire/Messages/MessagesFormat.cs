@@ -98,12 +98,7 @@ public sealed class MessagesFormat : IWireFormat
         }
     }
 
-    public byte[] UpstreamBody(LaneRequest request)
-    {
-        var copy = (JsonObject)request.Body.DeepClone();
-        copy.Remove("stream");
-        return JsonSerializer.SerializeToUtf8Bytes(copy);
-    }
+    public byte[] UpstreamBody(LaneRequest request) => WireJson.WithoutStreaming(request.Body);
 
     public LaneAnswer ReadAnswer(ReadOnlySpan<byte> utf8)
     {

@@ -1,4 +1,3 @@
-using System.Text;
 using System.Text.Json.Nodes;
 using Microsoft.AspNetCore.Http;
 
@@ -9,32 +8,20 @@ namespace RewriteProxy.Wire.Responses;
 /// then per message item <c>response.output_item.added</c>, <c>response.content_part.added</c>, the
 /// <c>response.output_text.delta</c> pieces, <c>response.output_text.done</c>, <c>response.content_part.done</c>,
 /// <c>response.output_item.done</c>, and last <c>response.completed</c> with the full response. Each event carries
-/// its type in an <c>event:</c> line and a rising <c>sequence_number</c>, as the API sends them.
+/// its type in an <c>event:</c> line and a rising <c>sequence_number</c> (<see cref="EventStream"/>).
 /// </summary>
 public static class ResponsesEvents
 {
     public static async Task WriteAsync(HttpContext context, JsonObject response)
     {
-        context.Response.StatusCode = StatusCodes.Status200OK;
-        context.Response.ContentType = "text/event-stream";
-        context.Response.Headers.CacheControl = "no-cache";
-
-        var buffer = new StringBuilder();
-        var sequence = 0;
-        void Event(string type, JsonObject fields)
-        {
-            var data = new JsonObject { ["type"] = type };
-            foreach (var (k, v) in fields) data[k] = v?.DeepClone();
-            data["sequence_number"] = sequence++;
-            buffer.Append("event: ").Append(type).Append('\n').Append("data: ").Append(data.ToJsonString()).Append("\n\n");
-        }
+        var events = new EventStream { Numbered = true };
 
         var started = (JsonObject)response.DeepClone();
         started["status"] = "in_progress";
         started["output"] = new JsonArray();
         started["usage"] = null;
-        Event("response.created", new JsonObject { ["response"] = started.DeepClone() });
-        Event("response.in_progress", new JsonObject { ["response"] = started.DeepClone() });
+        events.Add("response.created", new JsonObject { ["response"] = started.DeepClone() });
+        events.Add("response.in_progress", new JsonObject { ["response"] = started.DeepClone() });
 
         var output = response["output"] as JsonArray ?? [];
         for (var index = 0; index < output.Count; index++)
@@ -44,7 +31,7 @@ public static class ResponsesEvents
             var opened = (JsonObject)item.DeepClone();
             opened["status"] = "in_progress";
             opened["content"] = new JsonArray();
-            Event("response.output_item.added", new JsonObject { ["output_index"] = index, ["item"] = opened });
+            events.Add("response.output_item.added", new JsonObject { ["output_index"] = index, ["item"] = opened });
             var parts = item["content"] as JsonArray ?? [];
             for (var part = 0; part < parts.Count; part++)
             {
@@ -55,26 +42,25 @@ public static class ResponsesEvents
                 empty["text"] = "";
                 var added = Where();
                 added["part"] = empty;
-                Event("response.content_part.added", added);
+                events.Add("response.content_part.added", added);
                 foreach (var piece in CompletionWriter.Pieces(text))
                 {
                     var delta = Where();
                     delta["delta"] = piece;
                     delta["logprobs"] = new JsonArray();
-                    Event("response.output_text.delta", delta);
+                    events.Add("response.output_text.delta", delta);
                 }
                 var done = Where();
                 done["text"] = text;
                 done["logprobs"] = new JsonArray();
-                Event("response.output_text.done", done);
+                events.Add("response.output_text.done", done);
                 var partDone = Where();
                 partDone["part"] = p.DeepClone();
-                Event("response.content_part.done", partDone);
+                events.Add("response.content_part.done", partDone);
             }
-            Event("response.output_item.done", new JsonObject { ["output_index"] = index, ["item"] = item.DeepClone() });
+            events.Add("response.output_item.done", new JsonObject { ["output_index"] = index, ["item"] = item.DeepClone() });
         }
-        Event("response.completed", new JsonObject { ["response"] = response.DeepClone() });
-        // The whole answer is known: one write.
-        await context.Response.WriteAsync(buffer.ToString(), context.RequestAborted);
+        events.Add("response.completed", new JsonObject { ["response"] = response.DeepClone() });
+        await events.WriteAsync(context);
     }
 }

@@ -1,0 +1,120 @@
+using System.Diagnostics;
+using System.Runtime;
+using Microsoft.Extensions.Logging;
+using Microsoft.ML.OnnxRuntime;
+using SessionOptions = Microsoft.ML.OnnxRuntime.SessionOptions;
+
+namespace RewriteProxy.Embedding;
+
+/// <summary>Loading: the model's sessions, their settings, and the memory given back once they exist.</summary>
+public sealed partial class OnnxEmbedder
+{
+    /// <summary>
+    /// Loads the model named by <paramref name="options"/> (or the packaged all-MiniLM-L6-v2), checks that it fits,
+    /// and runs it once so that the first real call is not the slow one.
+    /// </summary>
+    /// <exception cref="EmbedderLoadException">A file is missing or unreadable, or the model does not fit.</exception>
+    public static OnnxEmbedder Load(EmbeddingOptions options, ILogger? logger = null) =>
+        Load(options, DefaultSessions, logger);
+
+    /// <summary>
+    /// Sessions kept by <see cref="Load(EmbeddingOptions, ILogger?)"/>, the threads split between them: one session with
+    /// every thread. It holds the model's weights once (two sessions held them twice: ~90 MB more resident memory), and
+    /// a lone question, the common case for a semantic hit, runs on every core instead of on half of them. Callers
+    /// share it concurrently (InferenceSession.Run is thread-safe). Measured against two one-thread sessions on 2 cores
+    /// (docs/measurements/performance.md): no slower alone or with 2 or 4 concurrent callers once its threads do
+    /// not spin (<see cref="AllowSpinning"/>); with spinning it was about twice as slow under load.
+    /// </summary>
+    internal const int DefaultSessions = 1;
+
+    /// <summary>
+    /// Whether ORT's intra-op threads spin-wait for work instead of sleeping. Off: on a 2-core proxy a spinning thread
+    /// takes the core that request handling (or a concurrent question) needs. Measured on 2 cores under load, one
+    /// 2-thread session: 15–18 ms of CPU per question with spinning, 7–10 ms without (docs/measurements).
+    /// </summary>
+    internal const bool AllowSpinning = false;
+
+    /// <summary>As <see cref="Load(EmbeddingOptions, ILogger?)"/> with <paramref name="sessionCount"/> sessions: 1 = one session
+    /// shared by every caller; more = a pool, each session with its share of the threads.</summary>
+    internal static OnnxEmbedder Load(EmbeddingOptions options, int sessionCount, ILogger? logger = null)
+    {
+        ArgumentOutOfRangeException.ThrowIfLessThan(sessionCount, 1);
+        int threads = options.Threads > 0 ? options.Threads : Environment.ProcessorCount;
+        // More sessions than threads would leave a session without a thread of its own.
+        sessionCount = Math.Min(sessionCount, threads);
+        long started = Stopwatch.GetTimestamp();
+        OnnxEmbedder embedder = Create(options, sessionCount, threads);
+        ReleaseModelCopy();
+        logger?.LogInformation(
+            "Embedding model {Model} loaded in {Milliseconds} ms: id {ModelId}, {Dimension} dimensions, {Sessions} session(s) x {Threads} thread(s), {MaxTokens} word pieces",
+            embedder._modelName, (long)Stopwatch.GetElapsedTime(started).TotalMilliseconds, embedder.ModelId,
+            embedder.Dimension, sessionCount, embedder._sessionOptions.IntraOpNumThreads, embedder.MaxTokens);
+        return embedder;
+    }
+
+    /// <summary>
+    /// Reads the model and builds the sessions. A method of its own so that the model's bytes (a 90 MB managed array)
+    /// are referenced from no frame once it returns: ONNX Runtime keeps its own copy, and <see cref="ReleaseModelCopy"/>
+    /// can then give the array's memory back.
+    /// </summary>
+    static OnnxEmbedder Create(EmbeddingOptions options, int sessionCount, int threads)
+    {
+        EmbeddingModelSource source = EmbeddingModelSource.Resolve(options);
+        WordPieceEncoder encoder = WordPieceEncoder.Load(new MemoryStream(source.Vocabulary, writable: false), source.VocabularyName, options.MaxTokens);
+
+        var sessionOptions = new SessionOptions
+        {
+            GraphOptimizationLevel = GraphOptimizationLevel.ORT_ENABLE_ALL,
+            ExecutionMode = ExecutionMode.ORT_SEQUENTIAL,
+            IntraOpNumThreads = Math.Max(1, threads / sessionCount),
+            InterOpNumThreads = 1,
+        };
+        // Between runs, ORT's intra-op threads spin-wait for the next parallel section by default. Those spins take a core
+        // from request handling on a proxy that embeds now and then; a run's own sections still follow each other closely.
+        sessionOptions.AddSessionConfigEntry("session.intra_op.allow_spinning", AllowSpinning ? "1" : "0");
+        var sessions = new InferenceSession[sessionCount];
+        try
+        {
+            for (int i = 0; i < sessionCount; i++)
+                sessions[i] = CreateSession(source, sessionOptions);
+            (string[] inputs, string output) = BertModelShape.Check(sessions[0], source.ModelName);
+            var embedder = new OnnxEmbedder(encoder, sessionOptions, sessions, source.ModelId(PoolingName), inputs, output)
+            {
+                _modelName = source.ModelName,
+            };
+            embedder.Dimension = embedder.ProbeDimension(source.ModelName);
+            return embedder;
+        }
+        catch
+        {
+            foreach (InferenceSession? session in sessions)
+                session?.Dispose();
+            sessionOptions.Dispose();
+            throw;
+        }
+    }
+
+    /// <summary>
+    /// One full, compacting collection right after loading. The model's bytes were read into a managed array (the
+    /// ONNX Runtime API takes a byte[]) that is garbage once the sessions exist, but a 90 MB array on the large object
+    /// heap is only reclaimed by a full collection, which an idle or lightly loaded proxy may not run for hours.
+    /// Measured: ~85 MB of VmRSS given back (docs/measurements). Once per load, at start, before any request.
+    /// </summary>
+    static void ReleaseModelCopy()
+    {
+        GCSettings.LargeObjectHeapCompactionMode = GCLargeObjectHeapCompactionMode.CompactOnce;
+        GC.Collect(GC.MaxGeneration, GCCollectionMode.Aggressive, blocking: true, compacting: true);
+    }
+
+    static InferenceSession CreateSession(EmbeddingModelSource source, SessionOptions options)
+    {
+        try
+        {
+            return new InferenceSession(source.Model, options);
+        }
+        catch (OnnxRuntimeException ex)
+        {
+            throw new EmbedderLoadException($"Embedding model '{source.ModelName}' is not a loadable ONNX model: {WordPieceEncoder.FirstLine(ex.Message)}", ex);
+        }
+    }
+}

@@ -31,6 +31,7 @@ public sealed class SemanticCache
     readonly VectorIndex _index;
     readonly IEmbedder _embedder;
     readonly AnchorGuard _guard;
+    readonly HitDecision _decision;
     readonly StoreOptions _options;
     readonly ILogger _log;
 
@@ -40,6 +41,7 @@ public sealed class SemanticCache
         _index = index;
         _embedder = embedder;
         _guard = guard;
+        _decision = new HitDecision(guard);
         _options = options;
         _log = log;
         _store.Removed += ids =>
@@ -120,7 +122,7 @@ public sealed class SemanticCache
         }
         if (near.Count == 0) return new LookupResult(LookupKind.Miss, null, null, vector);
 
-        var asked = _guard.Extract(question);
+        var asked = _decision.Read(question);
         foreach (var (id, similarity) in near)
         {
             StoredEntry? entry;
@@ -133,7 +135,7 @@ public sealed class SemanticCache
                 throw new CacheFailure("store", e.Message, e);
             }
             if (entry is null) continue;
-            var verdict = _guard.Compare(asked, _guard.Extract(entry.Question));
+            var verdict = _decision.Decide(asked, _decision.Read(entry.Question), similarity);
             if (verdict.Agree) return new LookupResult(LookupKind.HitSemantic, entry, similarity, vector);
 
             ProxyMetrics.GuardRejections.WithLabels(lane.Name, verdict.Reason!).Inc();

@@ -1,0 +1,102 @@
+using System.Runtime.CompilerServices;
+using System.Text;
+using System.Text.Json;
+using RewriteProxy.Cache;
+using RewriteProxy.Embedding;
+using RewriteProxy.Tests.Fixtures;
+
+namespace RewriteProxy.Tests.Cache;
+
+/// <summary>One labelled pair of the hit corpus (tests/corpus/hit-pairs): the cached question is stored, the asked one then asked.</summary>
+public sealed record CorpusPair(string Part, string Id, string Domain, string Family, string Label, string Cached, string Asked, string Source)
+{
+    public bool IsParaphrase => Label == "paraphrase";
+}
+
+/// <summary>A pair as the proxy sees it: similarity of the two question vectors, today's verdict (anchor guard) and the hit decision's.</summary>
+public sealed record MeasuredPair(CorpusPair Pair, double Similarity, AnchorVerdict Today, AnchorVerdict Decision)
+{
+    /// <summary>Served at <paramref name="hitSimilarity"/> by similarity alone, as the vector index finds candidates.</summary>
+    public bool ServedByCosine(double hitSimilarity) => Similarity >= hitSimilarity;
+
+    public bool ServedToday(double hitSimilarity) => ServedByCosine(hitSimilarity) && Today.Agree;
+
+    public bool ServedByDecision(double hitSimilarity) => ServedByCosine(hitSimilarity) && Decision.Agree;
+}
+
+/// <summary>
+/// Runs the real embedder (our ONNX all-MiniLM-L6-v2, as the proxy loads it) and the real decision over every pair of
+/// the hit corpus. Embeddings are computed once per test run and shared by every test that measures.
+/// </summary>
+public static class HitCorpusMeasure
+{
+    public static readonly string[] Parts = ["dev", "test"];
+
+    /// <summary>tests/corpus/hit-pairs, found from this source file so no copy to the output folder is needed.</summary>
+    public static string CorpusFolder => Path.GetFullPath(Path.Combine(Path.GetDirectoryName(ThisFile())!, "..", "..", "corpus", "hit-pairs"));
+
+    static string ThisFile([CallerFilePath] string here = "") => here;
+
+    static readonly Lazy<IReadOnlyList<CorpusPair>> s_pairs = new(LoadAll);
+    static readonly Lock s_gate = new();
+    static readonly Dictionary<string, float[]> s_vectors = new(StringComparer.Ordinal);
+
+    public static IReadOnlyList<CorpusPair> Pairs => s_pairs.Value;
+
+    static IReadOnlyList<CorpusPair> LoadAll()
+    {
+        var pairs = new List<CorpusPair>();
+        foreach (var part in Parts)
+        {
+            var path = Path.Combine(CorpusFolder, part + ".jsonl");
+            if (!File.Exists(path)) continue;
+            foreach (var line in File.ReadLines(path))
+            {
+                if (string.IsNullOrWhiteSpace(line)) continue;
+                using var doc = JsonDocument.Parse(line);
+                var r = doc.RootElement;
+                string S(string name) => r.TryGetProperty(name, out var v) && v.ValueKind == JsonValueKind.String ? v.GetString()! : "";
+                pairs.Add(new CorpusPair(part, S("id"), S("domain"), S("family"), S("label"), S("cached"), S("asked"), S("source")));
+            }
+        }
+        return pairs;
+    }
+
+    /// <summary>Vectors of every corpus question from <paramref name="embedder"/>, batched, each text once per run.</summary>
+    public static IReadOnlyDictionary<string, float[]> Vectors(IEmbedder embedder)
+    {
+        lock (s_gate)
+        {
+            var missing = Pairs.SelectMany(p => new[] { p.Cached, p.Asked }).Distinct(StringComparer.Ordinal)
+                .Where(t => !s_vectors.ContainsKey(t)).ToList();
+            foreach (var batch in missing.Chunk(32))
+            {
+                var vectors = embedder.Embed(batch);
+                for (var i = 0; i < batch.Length; i++) s_vectors[batch[i]] = vectors[i];
+            }
+            return new Dictionary<string, float[]>(s_vectors, StringComparer.Ordinal);
+        }
+    }
+
+    /// <summary>Every pair through similarity, today's guard and the decision.</summary>
+    public static IReadOnlyList<MeasuredPair> Measure(HitDecision? decision = null)
+    {
+        var guard = new AnchorGuard();
+        decision ??= new HitDecision(guard);
+        var vectors = Vectors(SharedEmbedder.Instance);
+        return Pairs.Select(p =>
+        {
+            var similarity = VectorMath.Dot(vectors[p.Asked], vectors[p.Cached]);
+            return new MeasuredPair(p, similarity, guard.Compare(p.Asked, p.Cached), decision.Decide(p.Asked, p.Cached, similarity));
+        }).ToList();
+    }
+
+    /// <summary>Tab-separated, one pair a line: for reading the dev part's misses in a spreadsheet or with awk.</summary>
+    public static void Dump(IEnumerable<MeasuredPair> measured, string path)
+    {
+        var text = new StringBuilder("part\tid\tfamily\tlabel\tsimilarity\ttoday\tdecision\tdetail\tcached\tasked\n");
+        foreach (var m in measured)
+            text.Append($"{m.Pair.Part}\t{m.Pair.Id}\t{m.Pair.Family}\t{m.Pair.Label}\t{m.Similarity:F3}\t{m.Today.Reason ?? "serve"}\t{m.Decision.Reason ?? "serve"}\t{m.Decision.Detail}\t{m.Pair.Cached}\t{m.Pair.Asked}\n");
+        File.WriteAllText(path, text.ToString());
+    }
+}

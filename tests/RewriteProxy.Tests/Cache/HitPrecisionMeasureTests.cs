@@ -1,0 +1,66 @@
+using RewriteProxy.Hosting;
+using Xunit.Abstractions;
+
+namespace RewriteProxy.Tests.Cache;
+
+/// <summary>
+/// The hit corpus (tests/corpus/hit-pairs) through the real embedder and the real hit decision: per part (dev, test)
+/// and per family, how many near-misses are served (false hits) and how many paraphrases are served. README
+/// ("Choosing thresholds") quotes the tables this writes.
+/// Run: dotnet test tests/RewriteProxy.Tests -c Release --filter "FullyQualifiedName~HitPrecisionMeasureTests" --logger "console;verbosity=detailed"
+/// HIT_DUMP=/path/file.tsv also writes every dev pair with its similarity and verdicts (never the test part: it is
+/// not read pair by pair, so that nothing is tuned on it).
+/// </summary>
+[Trait("Category", "Measure")]
+public sealed class HitPrecisionMeasureTests(ITestOutputHelper output)
+{
+    static readonly double[] Sweep = [0.70, 0.75, 0.80, 0.85, 0.90];
+
+    [Fact]
+    public void Report_near_misses_and_paraphrases_served_per_part_and_family()
+    {
+        var measured = HitCorpusMeasure.Measure();
+        Assert.NotEmpty(measured);
+        var at = OptionsReader.DefaultHitSimilarity;
+        if (Environment.GetEnvironmentVariable("HIT_DUMP") is { Length: > 0 } dump)
+            HitCorpusMeasure.Dump(measured.Where(m => m.Pair.Part == "dev"), dump);
+
+        foreach (var part in HitCorpusMeasure.Parts)
+        {
+            var rows = measured.Where(m => m.Pair.Part == part).ToList();
+            if (rows.Count == 0)
+            {
+                output.WriteLine($"## {part}: no pairs yet");
+                continue;
+            }
+            output.WriteLine($"## {part}: {rows.Count} pairs, HitSimilarity {at:F2}");
+            output.WriteLine("");
+            output.WriteLine("| label | family | n | cosine alone | today (anchor guard) | hit decision |");
+            output.WriteLine("| --- | --- | --- | --- | --- | --- |");
+            foreach (var label in new[] { "near_miss", "paraphrase" })
+            {
+                foreach (var family in rows.Where(m => m.Pair.Label == label).GroupBy(m => m.Pair.Family).OrderBy(g => g.Key, StringComparer.Ordinal))
+                    output.WriteLine(Row(label, family.Key, family.ToList(), at));
+                output.WriteLine(Row(label, "**all**", rows.Where(m => m.Pair.Label == label).ToList(), at));
+            }
+            output.WriteLine("");
+            output.WriteLine("| HitSimilarity | near-misses served, today | paraphrases served, today | near-misses served, decision | paraphrases served, decision |");
+            output.WriteLine("| --- | --- | --- | --- | --- |");
+            var near = rows.Where(m => !m.Pair.IsParaphrase).ToList();
+            var para = rows.Where(m => m.Pair.IsParaphrase).ToList();
+            foreach (var t in Sweep)
+                output.WriteLine($"| {t:F2} | {Share(near.Count(m => m.ServedToday(t)), near.Count)} | {Share(para.Count(m => m.ServedToday(t)), para.Count)} | "
+                    + $"{Share(near.Count(m => m.ServedByDecision(t)), near.Count)} | {Share(para.Count(m => m.ServedByDecision(t)), para.Count)} |");
+            output.WriteLine("");
+            output.WriteLine("Refusals of the hit decision at the default, by reason: " + string.Join(", ",
+                rows.Where(m => m.ServedByCosine(at) && !m.Decision.Agree).GroupBy(m => m.Decision.Reason)
+                    .OrderByDescending(g => g.Count()).Select(g => $"{g.Key} {g.Count()}")));
+            output.WriteLine("");
+        }
+    }
+
+    static string Row(string label, string family, List<MeasuredPair> rows, double at) =>
+        $"| {label} | {family} | {rows.Count} | {rows.Count(m => m.ServedByCosine(at))} | {rows.Count(m => m.ServedToday(at))} | {rows.Count(m => m.ServedByDecision(at))} |";
+
+    static string Share(int count, int of) => of == 0 ? "–" : $"{count}/{of} ({100.0 * count / of:F1}%)";
+}

@@ -13,8 +13,14 @@ public static class AnchorReason
     public const string Identifier = "identifier";
     public const string Contrast = "contrast";
 
-    /// <summary>Every reason, in the order the guard checks them.</summary>
-    public static readonly IReadOnlyList<string> All = [Negation, Number, Unit, Identifier, Contrast];
+    /// <summary>The hit decision: two parts of the question trade places ("the buyer pays the seller" / "the seller pays the buyer").</summary>
+    public const string Role = "role";
+
+    /// <summary>The hit decision: a word was replaced, added or dropped, and WordNet has no sense the two share ("diesel" / "petrol").</summary>
+    public const string Substitution = "substitution";
+
+    /// <summary>Every reason, in the order the anchor guard and then the hit decision check them.</summary>
+    public static readonly IReadOnlyList<string> All = [Negation, Number, Unit, Identifier, Contrast, Role, Substitution];
 }
 
 /// <summary>
@@ -201,6 +207,16 @@ public sealed partial class AnchorGuard
                 }
                 for (var k = i; k <= i + consumed; k++) words.Add(Normalise(tokens[k].Lower));
                 i += consumed;
+                continue;
+            }
+
+            if (CountedCompound(lower) is { } counted)
+            {
+                // "a five-day course", "a 10-trip card": the count is a number like any other, the rest a plain word.
+                numbers.Add(counted.Number);
+                words.Add(Normalise(lower));
+                words.Add(counted.Word);
+                _antonyms.AddLemmas(counted.Word, lemmas);
                 continue;
             }
 
@@ -434,6 +450,18 @@ public sealed partial class AnchorGuard
         consumed = j - i - 1;
         value = (total + current).ToString(CultureInfo.InvariantCulture);
         return true;
+    }
+
+    /// <summary>"five-day", "10-trip", "twenty-five-year": a count joined by a hyphen to a word; null for anything else ("twenty-one", "XR-200").</summary>
+    static (string Number, string Word)? CountedCompound(string lower)
+    {
+        var dash = lower.LastIndexOf('-');
+        if (dash <= 0 || dash == lower.Length - 1) return null;
+        var head = lower[..dash];
+        var rest = lower[(dash + 1)..];
+        if (!rest.All(char.IsLetter) || CardinalWord(rest) is not null || AnchorLexicon.Ordinals.ContainsKey(rest)) return null;
+        if (head.All(char.IsDigit)) return (CanonicalDigits(head)!, rest);
+        return CardinalWord(head) is { } n ? (n.ToString(CultureInfo.InvariantCulture), rest) : null;
     }
 
     static bool IsNumberWord(string lower) => CardinalWord(lower) is not null || AnchorLexicon.Multipliers.ContainsKey(lower);

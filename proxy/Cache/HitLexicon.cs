@@ -1,0 +1,44 @@
+using System.Collections.Frozen;
+
+namespace RewriteProxy.Cache;
+
+/// <summary>
+/// The hit decision's fixed word lists. English only, like the embedding model. Chosen by reading the dev part of the
+/// hit corpus (tests/corpus/hit-pairs/dev.jsonl), never the test part.
+/// </summary>
+internal static class HitLexicon
+{
+    /// <summary>
+    /// Words that paraphrases change freely and that carry no fact of the question: articles, pronouns, auxiliaries
+    /// and modals, question words, conjunctions, fillers of informal register. Scope words ("all", "only", "each")
+    /// are not here: they change whom a rule applies to.
+    /// </summary>
+    public static readonly FrozenSet<string> Function = FrozenSet.ToFrozenSet(
+    [
+        "a", "an", "the", "this", "that", "these", "those", "there", "here",
+        "i", "me", "my", "mine", "myself", "we", "us", "our", "ours", "you", "your", "yours", "he", "him", "his", "she", "her",
+        "hers", "it", "its", "they", "them", "their", "theirs", "someone", "somebody", "anyone", "anybody", "one", "ones",
+        "be", "am", "is", "are", "was", "were", "been", "being", "do", "does", "did", "done", "doing", "have", "has", "had",
+        "having", "can", "could", "will", "would", "shall", "should", "may", "might", "must", "ca", "wo", "sha", "gonna",
+        "what", "which", "who", "whom", "whose", "when", "where", "why", "how", "whether",
+        "and", "or", "but", "so", "if", "then", "than", "as", "of", "for", "about", "at", "to",
+        "please", "pls", "plz", "just", "really", "actually", "hey", "hi", "hello", "yo", "ugh", "ok", "okay", "guys",
+        "thing", "things", "stuff", "get", "gets", "got", "getting", "going", "go", "let", "lets", "kind", "sort",
+        "possible", "able", "allowed", "permitted", "permissible", "fine", "way",
+        // What a question word becomes in a rewording: "when" / "what time", "how do I" / "what is the procedure".
+        "much", "many", "time", "date", "procedure", "process", "steps", "reason", "place", "places", "amount",
+    ], StringComparer.Ordinal);
+
+    /// <summary>Words of a written number or percentage that the anchor guard compares ("twenty-five percent" / "25%").</summary>
+    public static readonly FrozenSet<string> NumberWords = FrozenSet.ToFrozenSet(
+    [
+        "percent", "pct", "cent", "hundred", "thousand", "million", "billion", "dozen", "half", "quarter",
+    ], StringComparer.Ordinal);
+
+    /// <summary>Prepositions and particles: "opt in" / "opt out", "pick up" / "drop off" differ only in them.</summary>
+    public static readonly FrozenSet<string> Particles = FrozenSet.ToFrozenSet(
+    [
+        "in", "out", "on", "off", "up", "down", "over", "under", "above", "below", "before", "after", "within", "into",
+        "onto", "from", "by", "with", "through", "across", "between", "back", "away", "during", "until", "till", "since",
+    ], StringComparer.Ordinal);
+}

@@ -1,0 +1,263 @@
+using System.Text.RegularExpressions;
+
+namespace RewriteProxy.Cache;
+
+/// <summary>
+/// The words of one question as the hit decision aligns them: lower-case, split at hyphens and apostrophes' "s",
+/// each with its WordNet lemmas and its word class. Read once per question.
+/// </summary>
+public sealed partial class QuestionWords
+{
+    internal QuestionWords(string[] raw, string[] words, string[][] lemmas, WordClass[] classes)
+    {
+        Raw = raw;
+        Words = words;
+        Lemmas = lemmas;
+        Classes = classes;
+    }
+
+    internal string[] Raw { get; }
+    internal string[] Words { get; }
+    internal string[][] Lemmas { get; }
+    internal WordClass[] Classes { get; }
+    public int Count => Words.Length;
+
+    [GeneratedRegex(@"[\p{L}\p{N}]+(?:['’][\p{L}]+)?")]
+    private static partial Regex WordPattern();
+
+    internal static QuestionWords Read(string question, WordSenses senses)
+    {
+        var raw = new List<string>();
+        foreach (Match m in WordPattern().Matches(question))
+        {
+            var w = m.Value.Replace('’', '\'');
+            if (w.EndsWith("'s", StringComparison.OrdinalIgnoreCase)) w = w[..^2];
+            else if (w.EndsWith("n't", StringComparison.OrdinalIgnoreCase)) { raw.Add(w[..^3]); w = "not"; }
+            else if (w.EndsWith("'re", StringComparison.OrdinalIgnoreCase) || w.EndsWith("'ve", StringComparison.OrdinalIgnoreCase)
+                     || w.EndsWith("'ll", StringComparison.OrdinalIgnoreCase)) w = w[..^3];
+            else if (w.EndsWith("'m", StringComparison.OrdinalIgnoreCase) || w.EndsWith("'d", StringComparison.OrdinalIgnoreCase)) w = w[..^2];
+            if (w.Length > 0) raw.Add(w);
+        }
+        var words = raw.Select(w => w.ToLowerInvariant()).ToArray();
+        var lemmas = words.Select(w => w.Any(char.IsDigit) ? [w] : senses.Lemmas(w)).ToArray();
+        var classes = words.Select((w, i) => Classify(w, lemmas[i])).ToArray();
+        return new QuestionWords([.. raw], words, lemmas, classes);
+    }
+
+    static WordClass Classify(string word, string[] lemmas)
+    {
+        if (word.Any(char.IsDigit) || AnchorLexicon.Cardinals.ContainsKey(word) || HitLexicon.NumberWords.Contains(word)) return WordClass.Number;
+        if (HitLexicon.Function.Contains(word)) return WordClass.Function;
+        if (HitLexicon.Particles.Contains(word)) return WordClass.Particle;
+        return WordClass.Content;
+    }
+}
+
+/// <summary>How a word takes part in the comparison of two questions.</summary>
+internal enum WordClass : byte
+{
+    /// <summary>Carries the meaning: a substitution of it must be a synonym.</summary>
+    Content,
+    /// <summary>Prepositions and particles: they matter where they replace another ("opt in" / "opt out"), not where a rewording adds them.</summary>
+    Particle,
+    /// <summary>Articles, pronouns, auxiliaries, question words, fillers: rewordings change them freely.</summary>
+    Function,
+    /// <summary>Numbers: compared by the anchor guard, not here.</summary>
+    Number,
+}
+
+/// <summary>What differs between two questions once their words are aligned (longest common subsequence on lemmas).</summary>
+/// <param name="NovelAsked">Words of the asked question that nothing in the cached one explains (not the same lemma, a WordNet synonym, a derived form or an abbreviation).</param>
+/// <param name="NovelCached">The same for the cached question.</param>
+/// <param name="Substitutions">Gaps of the alignment where both questions have an unexplained word in the same place: a word replaced by another.</param>
+/// <param name="Swap">Two gaps that trade their words ("the buyer pays the seller" / "the seller pays the buyer"), or null.</param>
+public sealed record QuestionDiff(IReadOnlyList<string> NovelAsked, IReadOnlyList<string> NovelCached, int Substitutions, string? Swap)
+{
+    public int Novel => NovelAsked.Count + NovelCached.Count;
+
+    internal static QuestionDiff Compare(QuestionWords a, QuestionWords b, WordSenses senses)
+    {
+        var matches = Align(a, b);
+        var novelA = new List<string>();
+        var novelB = new List<string>();
+        var gaps = new List<(List<int> A, List<int> B)>();
+        int pa = -1, pb = -1;
+        foreach (var (i, j) in matches.Append((a.Count, b.Count)))
+        {
+            var gapA = Enumerable.Range(pa + 1, i - pa - 1).Where(k => a.Classes[k] is WordClass.Content or WordClass.Particle).ToList();
+            var gapB = Enumerable.Range(pb + 1, j - pb - 1).Where(k => b.Classes[k] is WordClass.Content or WordClass.Particle).ToList();
+            if (gapA.Count > 0 || gapB.Count > 0) gaps.Add((gapA, gapB));
+            pa = i;
+            pb = j;
+        }
+
+        var swap = Permuted(a, b);
+        var byA = a.Words.Count(w => w == "by");
+        var byB = b.Words.Count(w => w == "by");
+        // A passive agent ("released by the card issuer" / "the card issuer releases") moves a part without changing its role.
+        for (var x = 0; x < gaps.Count && swap is null && byA == byB; x++)
+            for (var y = x + 1; y < gaps.Count && swap is null; y++)
+                if (SameContent(a, gaps[x].A, b, gaps[y].B) && SameContent(b, gaps[x].B, a, gaps[y].A))
+                    swap = $"'{Text(a, gaps[x].A)}' and '{Text(a, gaps[y].A)}' trade places";
+
+        var substitutions = 0;
+        foreach (var (gapA, gapB) in gaps)
+        {
+            var openA = gapA.Where(k => !Explained(a, k, b, senses)).ToList();
+            var openB = gapB.Where(k => !Explained(b, k, a, senses)).ToList();
+            // A particle counts only where the other question has something unexplained in its place ("opt in" / "opt out"),
+            // not where a rewording adds one ("who cleans" / "by whom is ... cleaned").
+            var twoSided = openA.Count > 0 && openB.Count > 0;
+            var na = openA.Where(k => twoSided || a.Classes[k] == WordClass.Content).ToList();
+            var nb = openB.Where(k => twoSided || b.Classes[k] == WordClass.Content).ToList();
+            novelA.AddRange(na.Select(k => a.Words[k]));
+            novelB.AddRange(nb.Select(k => b.Words[k]));
+            if (na.Count > 0 && nb.Count > 0) substitutions++;
+        }
+        return new QuestionDiff(novelA, novelB, substitutions, swap);
+    }
+
+    static string Text(QuestionWords q, List<int> at) => string.Join(' ', at.Select(k => q.Words[k]));
+
+    /// <summary>Both gaps have content words, and each content word of one has the same lemma in the other.</summary>
+    static bool SameContent(QuestionWords a, List<int> gapA, QuestionWords b, List<int> gapB)
+    {
+        var ca = gapA.Where(i => a.Classes[i] == WordClass.Content).ToList();
+        var cb = gapB.Where(j => b.Classes[j] == WordClass.Content).ToList();
+        return ca.Count > 0 && cb.Count > 0
+            && ca.All(i => cb.Any(j => SameLemma(a.Lemmas[i], b.Lemmas[j])))
+            && cb.All(j => ca.Any(i => SameLemma(a.Lemmas[i], b.Lemmas[j])));
+    }
+
+    /// <summary>
+    /// The same words in another order that is not the clauses rotated ("If I miss a resit, do I …" / "Do I … if I miss
+    /// a resit"): then parts traded places ("Can a carer bring a companion pass holder" / "Can a companion pass holder bring a carer").
+    /// </summary>
+    static string? Permuted(QuestionWords a, QuestionWords b)
+    {
+        if (a.Count != b.Count || a.Words.SequenceEqual(b.Words)) return null;
+        if (!a.Words.Order(StringComparer.Ordinal).SequenceEqual(b.Words.Order(StringComparer.Ordinal))) return null;
+        for (var k = 1; k < a.Count; k++)
+            if (a.Words[k..].Concat(a.Words[..k]).SequenceEqual(b.Words)) return null;
+        return "the same words in another order";
+    }
+
+    static bool SameLemma(string[] x, string[] y)
+    {
+        foreach (var l in x)
+            if (Array.IndexOf(y, l) >= 0) return true;
+        return false;
+    }
+
+    /// <summary>Longest common subsequence of the two word lists, two words matching when they share a lemma; pairs in order.</summary>
+    static List<(int, int)> Align(QuestionWords a, QuestionWords b)
+    {
+        int n = a.Count, m = b.Count;
+        var table = new int[n + 1, m + 1];
+        for (var i = n - 1; i >= 0; i--)
+            for (var j = m - 1; j >= 0; j--)
+                table[i, j] = SameLemma(a.Lemmas[i], b.Lemmas[j]) ? table[i + 1, j + 1] + 1 : Math.Max(table[i + 1, j], table[i, j + 1]);
+        var pairs = new List<(int, int)>();
+        for (int i = 0, j = 0; i < n && j < m;)
+        {
+            if (SameLemma(a.Lemmas[i], b.Lemmas[j])) { pairs.Add((i, j)); i++; j++; }
+            else if (table[i + 1, j] >= table[i, j + 1]) i++;
+            else j++;
+        }
+        return pairs;
+    }
+
+    /// <summary>
+    /// Word <paramref name="k"/> of <paramref name="q"/> means something the other question also says: the same
+    /// lemma anywhere (a moved word), a WordNet synonym or derived form of one of its words or two-word compounds,
+    /// an abbreviation of its words ("HR" / "human resources", "appt" / "appointment"), or it is itself part of a
+    /// compound that is.
+    /// </summary>
+    static bool Explained(QuestionWords q, int k, QuestionWords other, WordSenses senses)
+    {
+        foreach (var unit in Units(q, k, senses))
+            foreach (var otherUnit in AllUnits(other, senses))
+                foreach (var x in unit)
+                    foreach (var y in otherUnit)
+                        if (senses.SameSense(x, y)) return true;
+        return Abbreviates(q, k, other) || AbbreviatedBy(q, k, other);
+    }
+
+    /// <summary>The lemmas of word k, then of each compound (two or three words) around it that WordNet knows.</summary>
+    static IEnumerable<string[]> Units(QuestionWords q, int k, WordSenses senses)
+    {
+        yield return q.Lemmas[k];
+        for (var start = Math.Max(0, k - 2); start <= k; start++)
+            for (var len = 2; len <= 3; len++)
+            {
+                if (start + len > q.Count || start + len <= k) continue;
+                var compound = string.Join(' ', q.Words[start..(start + len)]);
+                if (senses.Knows(compound)) yield return [compound];
+                // "paying back" → "pay back"
+                var head = q.Lemmas[start].Select(l => string.Join(' ', [l, .. q.Words[(start + 1)..(start + len)]])).FirstOrDefault(senses.Knows);
+                if (head is not null && head != compound) yield return [head];
+            }
+    }
+
+    static IEnumerable<string[]> AllUnits(QuestionWords q, WordSenses senses)
+    {
+        for (var k = 0; k < q.Count; k++)
+        {
+            if (q.Classes[k] == WordClass.Number) continue;
+            yield return q.Lemmas[k];
+            for (var len = 2; len <= 3 && k + len <= q.Count; len++)
+            {
+                var compound = string.Join(' ', q.Words[k..(k + len)]);
+                if (senses.Knows(compound)) yield return [compound];
+                var head = q.Lemmas[k].Select(l => string.Join(' ', [l, .. q.Words[(k + 1)..(k + len)]])).FirstOrDefault(senses.Knows);
+                if (head is not null && head != compound) yield return [head];
+            }
+        }
+    }
+
+    /// <summary>Word k is an abbreviation of words in the other question: their initials ("IDP"), or their letters in order from the first ("appt", "ID").</summary>
+    static bool Abbreviates(QuestionWords q, int k, QuestionWords other)
+    {
+        var word = q.Words[k];
+        var raw = q.Raw[k];
+        var looksAbbreviated = raw.Length >= 2 && (raw.Count(char.IsUpper) >= 2 || !WordSenses.Default.Knows(word) || word.Length <= 4);
+        if (!looksAbbreviated || word.Length < 2) return false;
+        for (var s = 0; s + word.Length <= other.Count; s++)
+        {
+            var initials = true;
+            for (var c = 0; c < word.Length && initials; c++) initials = other.Words[s + c][0] == word[c];
+            if (initials) return true;
+        }
+        foreach (var w in other.Words)
+            if (w.Length >= word.Length + 2 && w[0] == word[0] && IsSubsequence(word, w)) return true;
+        return false;
+    }
+
+    static bool AbbreviatedBy(QuestionWords q, int k, QuestionWords other)
+    {
+        for (var j = 0; j < other.Count; j++)
+        {
+            var abbreviation = other.Words[j];
+            var raw = other.Raw[j];
+            if (abbreviation.Length < 2 || !(raw.Count(char.IsUpper) >= 2 || !WordSenses.Default.Knows(abbreviation) || abbreviation.Length <= 4)) continue;
+            // k is one of the words the initials stand for, or the word the letters come from.
+            for (var s = Math.Max(0, k - abbreviation.Length + 1); s <= k && s + abbreviation.Length <= q.Count; s++)
+            {
+                var initials = true;
+                for (var c = 0; c < abbreviation.Length && initials; c++) initials = q.Words[s + c][0] == abbreviation[c];
+                if (initials) return true;
+            }
+            var w = q.Words[k];
+            if (w.Length >= abbreviation.Length + 2 && w[0] == abbreviation[0] && IsSubsequence(abbreviation, w)) return true;
+        }
+        return false;
+    }
+
+    static bool IsSubsequence(string small, string large)
+    {
+        var i = 0;
+        foreach (var c in large)
+            if (i < small.Length && small[i] == c) i++;
+        return i == small.Length;
+    }
+}

@@ -75,7 +75,7 @@ public sealed record QuestionDiff(IReadOnlyList<string> NovelAsked, IReadOnlyLis
 {
     public int Novel => NovelAsked.Count + NovelCached.Count;
 
-    internal static QuestionDiff Compare(QuestionWords a, QuestionWords b, WordSenses senses)
+    internal static QuestionDiff Compare(QuestionWords a, QuestionWords b, WordSenses senses, List<string>? trace = null)
     {
         var matches = Align(a, b);
         var novelA = new List<string>();
@@ -103,8 +103,8 @@ public sealed record QuestionDiff(IReadOnlyList<string> NovelAsked, IReadOnlyLis
         var substitutions = 0;
         foreach (var (gapA, gapB) in gaps)
         {
-            var openA = gapA.Where(k => !Explained(a, k, b, senses)).ToList();
-            var openB = gapB.Where(k => !Explained(b, k, a, senses)).ToList();
+            var openA = gapA.Where(k => !Explained(a, k, b, senses, trace)).ToList();
+            var openB = gapB.Where(k => !Explained(b, k, a, senses, trace)).ToList();
             // A particle counts only where the other question has something unexplained in its place ("opt in" / "opt out"),
             // not where a rewording adds one ("who cleans" / "by whom is ... cleaned").
             var twoSided = openA.Count > 0 && openB.Count > 0;
@@ -173,14 +173,20 @@ public sealed record QuestionDiff(IReadOnlyList<string> NovelAsked, IReadOnlyLis
     /// an abbreviation of its words ("HR" / "human resources", "appt" / "appointment"), or it is itself part of a
     /// compound that is.
     /// </summary>
-    static bool Explained(QuestionWords q, int k, QuestionWords other, WordSenses senses)
+    static bool Explained(QuestionWords q, int k, QuestionWords other, WordSenses senses, List<string>? trace)
     {
         foreach (var unit in Units(q, k, senses))
             foreach (var otherUnit in AllUnits(other, senses))
                 foreach (var x in unit)
                     foreach (var y in otherUnit)
-                        if (senses.SameSense(x, y)) return true;
-        return Abbreviates(q, k, other) || AbbreviatedBy(q, k, other);
+                        if (senses.SameSense(x, y))
+                        {
+                            trace?.Add($"{q.Words[k]}: {x} ~ {y}");
+                            return true;
+                        }
+        var abbreviation = Abbreviates(q, k, other) || AbbreviatedBy(q, k, other);
+        trace?.Add($"{q.Words[k]}: {(abbreviation ? "abbreviation" : "unexplained")}");
+        return abbreviation;
     }
 
     /// <summary>The lemmas of word k, then of each compound (two or three words) around it that WordNet knows.</summary>
@@ -220,7 +226,7 @@ public sealed record QuestionDiff(IReadOnlyList<string> NovelAsked, IReadOnlyLis
     {
         var word = q.Words[k];
         var raw = q.Raw[k];
-        var looksAbbreviated = raw.Length >= 2 && (raw.Count(char.IsUpper) >= 2 || !WordSenses.Default.Knows(word) || word.Length <= 4);
+        var looksAbbreviated = raw.Length >= 2 && (raw.Count(char.IsUpper) >= 2 || !WordSenses.Default.Knows(word));
         if (!looksAbbreviated || word.Length < 2) return false;
         for (var s = 0; s + word.Length <= other.Count; s++)
         {
@@ -239,7 +245,7 @@ public sealed record QuestionDiff(IReadOnlyList<string> NovelAsked, IReadOnlyLis
         {
             var abbreviation = other.Words[j];
             var raw = other.Raw[j];
-            if (abbreviation.Length < 2 || !(raw.Count(char.IsUpper) >= 2 || !WordSenses.Default.Knows(abbreviation) || abbreviation.Length <= 4)) continue;
+            if (abbreviation.Length < 2 || !(raw.Count(char.IsUpper) >= 2 || !WordSenses.Default.Knows(abbreviation))) continue;
             // k is one of the words the initials stand for, or the word the letters come from.
             for (var s = Math.Max(0, k - abbreviation.Length + 1); s <= k && s + abbreviation.Length <= q.Count; s++)
             {

@@ -17,22 +17,43 @@ internal sealed class WordSenses
 
     public static WordSenses Default => s_default.Value;
 
-    readonly FrozenDictionary<string, int[]> _senses;
+    /// <summary>
+    /// How many of a word's senses count, per part of speech, most frequent first (WordNet's sense order). Rare senses
+    /// make unrelated words synonyms: "board" and "card" share only their 8th and 11th noun senses (a circuit board).
+    /// 3 measured best on the dev part of the hit corpus (DEVELOPERS.md, "Hit decision").
+    /// </summary>
+    public const int DefaultDepth = 3;
+
+    readonly FrozenDictionary<string, int[][]> _senses;
+    readonly FrozenDictionary<int, int[]> _hypernyms;
     readonly FrozenDictionary<string, string[]> _derived;
     readonly FrozenDictionary<string, string[]> _irregular;
 
-    WordSenses(FrozenDictionary<string, int[]> senses, FrozenDictionary<string, string[]> derived, FrozenDictionary<string, string[]> irregular)
+    WordSenses(FrozenDictionary<string, int[][]> senses, FrozenDictionary<int, int[]> hypernyms, FrozenDictionary<string, string[]> derived,
+        FrozenDictionary<string, string[]> irregular)
     {
         _senses = senses;
+        _hypernyms = hypernyms;
         _derived = derived;
         _irregular = irregular;
     }
+
+    /// <summary>Senses counted per part of speech; <see cref="DefaultDepth"/> unless a measurement sets another.</summary>
+    public int Depth { get; init; } = DefaultDepth;
+
+    /// <summary>Whether a word and its direct hypernym ("fee" / "charge") count as the same sense. Off: on the dev part it served
+    /// 3 more near-misses for 2 more paraphrases (DEVELOPERS.md, "Hit decision").</summary>
+    public bool WithHypernyms { get; init; }
+
+    /// <summary>The same table with other settings: for the measurement that chose them.</summary>
+    public WordSenses With(int depth, bool hypernyms) => new(_senses, _hypernyms, _derived, _irregular) { Depth = depth, WithHypernyms = hypernyms };
 
     public int WordCount => _senses.Count;
 
     public static WordSenses Parse(TextReader reader)
     {
-        var senses = new Dictionary<string, int[]>(StringComparer.Ordinal);
+        var senses = new Dictionary<string, int[][]>(StringComparer.Ordinal);
+        var hypernyms = new Dictionary<int, int[]>();
         var derived = new Dictionary<string, List<string>>(StringComparer.Ordinal);
         var irregular = new Dictionary<string, List<string>>(StringComparer.Ordinal);
         while (reader.ReadLine() is { } line)
@@ -43,7 +64,11 @@ internal sealed class WordSenses
             switch (fields[0])
             {
                 case "w":
-                    senses[fields[1]] = fields[2].Split(' ').Select(Base36).ToArray();
+                    senses[fields[1]] = fields[2].Split(';')
+                        .Select(g => g.Length == 0 ? [] : g.Split(' ').Select(Base36).ToArray()).ToArray();
+                    break;
+                case "h":
+                    hypernyms[Base36(fields[1])] = fields[2].Split(' ').Select(Base36).ToArray();
                     break;
                 case "d":
                     Add(derived, fields[1], fields[2]);
@@ -56,7 +81,7 @@ internal sealed class WordSenses
                     throw new FormatException($"unknown senses line kind '{fields[0]}'");
             }
         }
-        return new WordSenses(senses.ToFrozenDictionary(StringComparer.Ordinal),
+        return new WordSenses(senses.ToFrozenDictionary(StringComparer.Ordinal), hypernyms.ToFrozenDictionary(),
             derived.ToFrozenDictionary(p => p.Key, p => p.Value.ToArray(), StringComparer.Ordinal),
             irregular.ToFrozenDictionary(p => p.Key, p => p.Value.ToArray(), StringComparer.Ordinal));
 
@@ -122,14 +147,29 @@ internal sealed class WordSenses
         }
     }
 
-    /// <summary>Two lemmas share a WordNet sense (synonyms), or one is derived from the other.</summary>
+    /// <summary>
+    /// Two lemmas mean the same: they share one of their first <see cref="Depth"/> senses of a part of speech, one is
+    /// derived from the other, or (with <see cref="WithHypernyms"/>) one such sense is a direct hypernym of the other's.
+    /// </summary>
     public bool SameSense(string a, string b)
     {
         if (a == b) return true;
         if (_derived.TryGetValue(a, out var forms) && Array.IndexOf(forms, b) >= 0) return true;
         if (!_senses.TryGetValue(a, out var x) || !_senses.TryGetValue(b, out var y)) return false;
-        foreach (var i in x)
-            if (Array.IndexOf(y, i) >= 0) return true;
+        for (var p = 0; p < x.Length; p++)
+        {
+            var xs = x[p].AsSpan(0, Math.Min(Depth, x[p].Length));
+            var ys = y[p].AsSpan(0, Math.Min(Depth, y[p].Length));
+            foreach (var i in xs)
+            {
+                if (ys.Contains(i)) return true;
+                if (!WithHypernyms) continue;
+                if (_hypernyms.TryGetValue(i, out var up))
+                    foreach (var h in up) if (ys.Contains(h)) return true;
+                foreach (var j in ys)
+                    if (_hypernyms.TryGetValue(j, out var upj) && Array.IndexOf(upj, i) >= 0) return true;
+            }
+        }
         return false;
     }
 }

@@ -64,3 +64,30 @@ public sealed class HitPrecisionMeasureTests(ITestOutputHelper output)
 
     static string Share(int count, int of) => of == 0 ? "–" : $"{count}/{of} ({100.0 * count / of:F1}%)";
 }
+
+/// <summary>
+/// The choices behind the decision's settings, measured on the dev part only (the test part is never read here):
+/// how many WordNet senses of a word count, and whether a direct hypernym counts as the same sense.
+/// </summary>
+[Trait("Category", "Measure")]
+public sealed class HitDecisionTuningTests(ITestOutputHelper output)
+{
+    [Fact]
+    public void Sense_depth_and_hypernyms_on_the_dev_part()
+    {
+        var guard = new RewriteProxy.Cache.AnchorGuard();
+        var at = OptionsReader.DefaultHitSimilarity;
+        output.WriteLine($"dev part, HitSimilarity {at:F2}: near-misses served / paraphrases served");
+        output.WriteLine("| senses per part of speech | hypernyms | near-misses served | paraphrases served |");
+        output.WriteLine("| --- | --- | --- | --- |");
+        foreach (var depth in new[] { 1, 2, 3, 4, 6, 99 })
+            foreach (var hypernyms in new[] { false, true })
+            {
+                var decision = new RewriteProxy.Cache.HitDecision(guard, RewriteProxy.Cache.WordSenses.Default.With(depth, hypernyms));
+                var dev = HitCorpusMeasure.Measure(decision).Where(m => m.Pair.Part == "dev").ToList();
+                var near = dev.Where(m => !m.Pair.IsParaphrase).ToList();
+                var para = dev.Where(m => m.Pair.IsParaphrase).ToList();
+                output.WriteLine($"| {(depth == 99 ? "all" : depth)} | {(hypernyms ? "yes" : "no")} | {near.Count(m => m.ServedByDecision(at))}/{near.Count} | {para.Count(m => m.ServedByDecision(at))}/{para.Count} |");
+            }
+    }
+}

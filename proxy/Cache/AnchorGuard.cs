@@ -104,11 +104,38 @@ public sealed partial class AnchorGuard
             // A plural s does not make another name ("Saturday" / "Saturdays").
             if (other.Tokens.Contains(id) || other.Tokens.Contains(id + "s")
                 || (id.Length > 2 && id[^1] == 's' && other.Tokens.Contains(id[..^1]))) continue;
+            if (Spelled(id, other.Text)) continue;
             return $"identifier '{id}' only in one question";
         }
         foreach (var quote in from.Quotes)
             if (!other.Text.Contains(quote, StringComparison.Ordinal)) return $"quoted \"{quote}\" only in one question";
         return null;
+    }
+
+    /// <summary>
+    /// An abbreviation written out in the other question: the initials of consecutive words ("HR" / "human resources",
+    /// "IDP" / "international driving permit"), or the letters in order of one longer word from its first ("ID" /
+    /// "identification"). Letters only, 2 to 5 of them: codes with digits must match as written.
+    /// </summary>
+    static bool Spelled(string id, string otherText)
+    {
+        if (id.Length is < 2 or > 5 || !id.All(char.IsAsciiLetterLower)) return false;
+        var words = otherText.Split([' ', '-', '/', ',', '.', '?', '!', '(', ')', ':', ';'], StringSplitOptions.RemoveEmptyEntries);
+        for (var s = 0; s + id.Length <= words.Length; s++)
+        {
+            var initials = true;
+            for (var c = 0; c < id.Length && initials; c++) initials = words[s + c][0] == id[c];
+            if (initials) return true;
+        }
+        foreach (var w in words)
+        {
+            if (w.Length < id.Length + 2 || w[0] != id[0]) continue;
+            var i = 0;
+            foreach (var c in w)
+                if (i < id.Length && id[i] == c) i++;
+            if (i == id.Length) return true;
+        }
+        return false;
     }
 
     /// <summary>
@@ -430,7 +457,9 @@ public sealed partial class AnchorGuard
         if (CardinalWord(first) is null && !AnchorLexicon.Multipliers.ContainsKey(first)) return false;
         if (first == "one" && (i + 1 >= tokens.Count || !IsNumberWord(tokens[i + 1].Lower))
             && ((i > 0 && AnchorLexicon.PronounOneBefore.Contains(tokens[i - 1].Lower))
-                || (i + 1 < tokens.Count && tokens[i + 1].Lower == "another")))
+                || (i > 0 && AnchorLexicon.Ordinals.ContainsKey(tokens[i - 1].Lower))
+                || i + 1 >= tokens.Count
+                || AnchorLexicon.PronounOneAfter.Contains(tokens[i + 1].Lower)))
             return false;
 
         long total = 0, current = 0;

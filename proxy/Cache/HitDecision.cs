@@ -29,12 +29,27 @@ public sealed class HitDecision
     {
         var anchors = _guard.Compare(asked.Anchors, cached.Anchors);
         if (!anchors.Agree) return anchors;
+        if (Obliges(asked.Words) != Obliges(cached.Words))
+            return AnchorVerdict.Refused(AnchorReason.Substitution, $"obligation: asked {Obliges(asked.Words)}, cached {Obliges(cached.Words)}");
         var diff = QuestionDiff.Compare(asked.Words, cached.Words, _senses);
         if (diff.Swap is { } swap) return AnchorVerdict.Refused(AnchorReason.Role, swap);
         if (diff.Novel > 0)
             return AnchorVerdict.Refused(AnchorReason.Substitution,
                 $"asked [{string.Join(", ", diff.NovelAsked)}], cached [{string.Join(", ", diff.NovelCached)}], substitutions {diff.Substitutions}");
         return anchors;
+    }
+
+    /// <summary>"Must I", "do I need to", "is … required", "do I have to": whether the question asks about an obligation.
+    /// Permission ("can I", "is it allowed") is the other kind, which rewordings trade freely among themselves.</summary>
+    static bool Obliges(QuestionWords q)
+    {
+        for (var i = 0; i < q.Count; i++)
+        {
+            var w = q.Words[i];
+            if (HitLexicon.Obligation.Contains(w)) return true;
+            if (w is "have" or "has" or "had" or "having" && i + 1 < q.Count && q.Words[i + 1] == "to") return true;
+        }
+        return false;
     }
 
     /// <summary>Reads both questions and decides: for tests and the measurement.</summary>

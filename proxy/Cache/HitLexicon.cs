@@ -25,6 +25,8 @@ internal static class HitLexicon
         "please", "pls", "plz", "just", "really", "actually", "hey", "hi", "hello", "yo", "ugh", "ok", "okay", "guys",
         "thing", "things", "stuff", "get", "gets", "got", "getting", "going", "go", "let", "lets", "kind", "sort",
         "possible", "able", "allowed", "permitted", "permissible", "fine", "way",
+        // Obligation words: compared as a whole by Obligation below, so "have to" and "required" are one meaning.
+        "need", "needs", "needed", "require", "required", "requires", "mandatory", "compulsory", "necessary", "obliged", "obligatory",
         // What a question word becomes in a rewording: "when" / "what time", "how do I" / "what is the procedure".
         "much", "many", "time", "date", "procedure", "process", "steps", "reason", "place", "places", "amount",
     ], StringComparer.Ordinal);
@@ -33,6 +35,13 @@ internal static class HitLexicon
     public static readonly FrozenSet<string> NumberWords = FrozenSet.ToFrozenSet(
     [
         "percent", "pct", "cent", "hundred", "thousand", "million", "billion", "dozen", "half", "quarter",
+    ], StringComparer.Ordinal);
+
+    /// <summary>Words that make the question one of obligation ("Do I have to …", "Is … required"); "have to" is read apart.</summary>
+    public static readonly FrozenSet<string> Obligation = FrozenSet.ToFrozenSet(
+    [
+        "must", "need", "needs", "needed", "require", "required", "requires", "mandatory", "compulsory", "necessary",
+        "obliged", "obligatory", "should",
     ], StringComparer.Ordinal);
 
     /// <summary>Prepositions and particles: "opt in" / "opt out", "pick up" / "drop off" differ only in them.</summary>

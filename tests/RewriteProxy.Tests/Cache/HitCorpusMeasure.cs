@@ -1,8 +1,7 @@
-using System.Runtime.CompilerServices;
 using System.Text;
-using System.Text.Json;
 using RewriteProxy.Cache;
 using RewriteProxy.Embedding;
+using RewriteProxy.Tests.Corpus;
 using RewriteProxy.Tests.Fixtures;
 
 namespace RewriteProxy.Tests.Cache;
@@ -32,35 +31,19 @@ public static class HitCorpusMeasure
 {
     public static readonly string[] Parts = ["dev", "test"];
 
-    /// <summary>tests/corpus/hit-pairs, found from this source file so no copy to the output folder is needed.</summary>
-    public static string CorpusFolder => Path.GetFullPath(Path.Combine(Path.GetDirectoryName(ThisFile())!, "..", "..", "corpus", "hit-pairs"));
-
-    static string ThisFile([CallerFilePath] string here = "") => here;
-
     static readonly Lazy<IReadOnlyList<CorpusPair>> s_pairs = new(LoadAll);
     static readonly Lock s_gate = new();
     static readonly Dictionary<string, float[]> s_vectors = new(StringComparer.Ordinal);
 
     public static IReadOnlyList<CorpusPair> Pairs => s_pairs.Value;
 
-    static IReadOnlyList<CorpusPair> LoadAll()
-    {
-        var pairs = new List<CorpusPair>();
-        foreach (var part in Parts)
-        {
-            var path = Path.Combine(CorpusFolder, part + ".jsonl");
-            if (!File.Exists(path)) continue;
-            foreach (var line in File.ReadLines(path))
-            {
-                if (string.IsNullOrWhiteSpace(line)) continue;
-                using var doc = JsonDocument.Parse(line);
-                var r = doc.RootElement;
-                string S(string name) => r.TryGetProperty(name, out var v) && v.ValueKind == JsonValueKind.String ? v.GetString()! : "";
-                pairs.Add(new CorpusPair(part, S("id"), S("domain"), S("family"), S("label"), S("cached"), S("asked"), S("source")));
-            }
-        }
-        return pairs;
-    }
+    static IReadOnlyList<CorpusPair> LoadAll() =>
+    [
+        .. HitCorpus.Load(CorpusPart.Dev).Select(p => From("dev", p)),
+        .. HitCorpus.Load(CorpusPart.Test).Select(p => From("test", p)),
+    ];
+
+    static CorpusPair From(string part, HitPair p) => new(part, p.Id, p.Domain, p.Family, p.Label, p.Cached, p.Asked, p.Source);
 
     /// <summary>Vectors of every corpus question from <paramref name="embedder"/>, batched, each text once per run.</summary>
     public static IReadOnlyDictionary<string, float[]> Vectors(IEmbedder embedder)

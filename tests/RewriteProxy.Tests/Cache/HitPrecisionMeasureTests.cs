@@ -14,7 +14,7 @@ namespace RewriteProxy.Tests.Cache;
 [Trait("Category", "Measure")]
 public sealed class HitPrecisionMeasureTests(ITestOutputHelper output)
 {
-    static readonly double[] Sweep = [0.70, 0.75, 0.80, 0.85, 0.90];
+    static readonly double[] Sweep = [0.60, 0.65, 0.70, 0.75, 0.80, 0.85, 0.90];
 
     [Fact]
     public void Report_near_misses_and_paraphrases_served_per_part_and_family()

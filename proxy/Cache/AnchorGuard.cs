@@ -105,6 +105,8 @@ public sealed partial class AnchorGuard
             if (other.Tokens.Contains(id) || other.Tokens.Contains(id + "s")
                 || (id.Length > 2 && id[^1] == 's' && other.Tokens.Contains(id[..^1]))) continue;
             if (Spelled(id, other.Text)) continue;
+            // The other question has the short form: "NI" for "National Insurance", "Sat" for "Saturday".
+            if (other.Identifiers.Any(o => o.Length < id.Length && Spelled(o, from.Text) && SpelledFrom(o, id, from.Text))) continue;
             return $"identifier '{id}' only in one question";
         }
         foreach (var quote in from.Quotes)
@@ -134,6 +136,22 @@ public sealed partial class AnchorGuard
             foreach (var c in w)
                 if (i < id.Length && id[i] == c) i++;
             if (i == id.Length) return true;
+        }
+        return false;
+    }
+
+    /// <summary>The short form <paramref name="shortForm"/> stands for words of <paramref name="text"/> that include <paramref name="id"/>.</summary>
+    static bool SpelledFrom(string shortForm, string id, string text)
+    {
+        var words = text.Split([' ', '-', '/', ',', '.', '?', '!', '(', ')', ':', ';'], StringSplitOptions.RemoveEmptyEntries);
+        var at = Array.IndexOf(words, id);
+        if (at < 0) return false;
+        if (Spelled(shortForm, id)) return true;
+        for (var s = Math.Max(0, at - shortForm.Length + 1); s <= at && s + shortForm.Length <= words.Length; s++)
+        {
+            var initials = true;
+            for (var c = 0; c < shortForm.Length && initials; c++) initials = words[s + c][0] == shortForm[c];
+            if (initials) return true;
         }
         return false;
     }

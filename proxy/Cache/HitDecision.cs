@@ -13,6 +13,8 @@ public sealed class HitDecision
     readonly AnchorGuard _guard;
     readonly WordSenses _senses;
 
+    /// <summary>A decision over the embedded WordNet tables, loaded here once per process (docs/measurements/precision.md
+    /// has the time it takes), so that no lookup waits for them.</summary>
     public HitDecision(AnchorGuard guard) : this(guard, WordSenses.Default) { }
 
     internal HitDecision(AnchorGuard guard, WordSenses senses)
@@ -33,10 +35,29 @@ public sealed class HitDecision
             return AnchorVerdict.Refused(AnchorReason.Substitution, $"obligation: asked {Obliges(asked.Words)}, cached {Obliges(cached.Words)}");
         var diff = QuestionDiff.Compare(asked.Words, cached.Words, _senses);
         if (diff.Swap is { } swap) return AnchorVerdict.Refused(AnchorReason.Role, swap);
+        if (diff.Novel == 1 && AgentAdded(asked.Words, cached.Words, diff) is { } agent)
+            return AnchorVerdict.Agreed;
         if (diff.Novel > 0)
             return AnchorVerdict.Refused(AnchorReason.Substitution,
                 $"asked [{string.Join(", ", diff.NovelAsked)}], cached [{string.Join(", ", diff.NovelCached)}], substitutions {diff.Substitutions}");
         return anchors;
+    }
+
+    /// <summary>
+    /// The only new word is the doer that an active question names and its passive twin leaves out ("When are payslips
+    /// emailed?" / "When does the company email payslips?"): the passive asks the same, whoever does it.
+    /// </summary>
+    static string? AgentAdded(QuestionWords asked, QuestionWords cached, QuestionDiff diff)
+    {
+        var (active, passive, word) = diff.NovelAsked.Count == 1 ? (asked, cached, diff.NovelAsked[0]) : (cached, asked, diff.NovelCached[0]);
+        return Auxiliary(active) is "do" or "does" or "did" && Auxiliary(passive) is "is" or "are" or "was" or "were" ? word : null;
+    }
+
+    static string? Auxiliary(QuestionWords q)
+    {
+        for (var i = 0; i < Math.Min(3, q.Count); i++)
+            if (q.Words[i] is "do" or "does" or "did" or "is" or "are" or "was" or "were") return q.Words[i];
+        return null;
     }
 
     /// <summary>"Must I", "do I need to", "is … required", "do I have to": whether the question asks about an obligation.

@@ -29,6 +29,8 @@ internal static class HitLexicon
         "need", "needs", "needed", "require", "required", "requires", "mandatory", "compulsory", "necessary", "obliged", "obligatory",
         // What a question word becomes in a rewording: "when" / "what time", "how do I" / "what is the procedure".
         "much", "many", "time", "date", "procedure", "process", "steps", "reason", "place", "places", "amount",
+        "cost", "costs", "price", "location", "office", "point", "role", "period", "age", "often", "frequency",
+        "involve", "involves", "involved", "should",
     ], StringComparer.Ordinal);
 
     /// <summary>Words of a written number or percentage that the anchor guard compares ("twenty-five percent" / "25%").</summary>
@@ -41,8 +43,16 @@ internal static class HitLexicon
     public static readonly FrozenSet<string> Obligation = FrozenSet.ToFrozenSet(
     [
         "must", "need", "needs", "needed", "require", "required", "requires", "mandatory", "compulsory", "necessary",
-        "obliged", "obligatory", "should",
+        "obliged", "obligatory",
     ], StringComparer.Ordinal);
+
+    /// <summary>Short forms that are also words of their own, so neither WordNet nor their letters mark them as abbreviations.</summary>
+    public static readonly FrozenDictionary<string, string> ShortForms = new Dictionary<string, string>(StringComparer.Ordinal)
+    {
+        ["max"] = "maximum", ["min"] = "minimum", ["approx"] = "approximately", ["info"] = "information", ["dept"] = "department",
+        ["mon"] = "monday", ["tue"] = "tuesday", ["tues"] = "tuesday", ["wed"] = "wednesday", ["thu"] = "thursday", ["thurs"] = "thursday",
+        ["fri"] = "friday", ["sat"] = "saturday", ["sun"] = "sunday",
+    }.ToFrozenDictionary(StringComparer.Ordinal);
 
     /// <summary>Prepositions and particles: "opt in" / "opt out", "pick up" / "drop off" differ only in them.</summary>
     public static readonly FrozenSet<string> Particles = FrozenSet.ToFrozenSet(

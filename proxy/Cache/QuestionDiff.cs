@@ -130,16 +130,31 @@ public sealed record QuestionDiff(IReadOnlyList<string> NovelAsked, IReadOnlyLis
     }
 
     /// <summary>
-    /// The same words in another order that is not the clauses rotated ("If I miss a resit, do I …" / "Do I … if I miss
-    /// a resit"): then parts traded places ("Can a carer bring a companion pass holder" / "Can a companion pass holder bring a carer").
+    /// The same words, two parts trading places around a verb ("Can a carer bring a companion pass holder" / "Can a
+    /// companion pass holder bring a carer"). Clauses moved as a whole ("If I miss a resit, do I …" / "Do I … if I miss a
+    /// resit") and lists in another order ("bank or building society") are not such a trade.
     /// </summary>
     static string? Permuted(QuestionWords a, QuestionWords b)
     {
         if (a.Count != b.Count || a.Words.SequenceEqual(b.Words)) return null;
         if (!a.Words.Order(StringComparer.Ordinal).SequenceEqual(b.Words.Order(StringComparer.Ordinal))) return null;
-        for (var k = 1; k < a.Count; k++)
-            if (a.Words[k..].Concat(a.Words[..k]).SequenceEqual(b.Words)) return null;
-        return "the same words in another order";
+        // The stretch that differs: X · middle · Y in one, Y · middle · X in the other.
+        int first = 0, last = a.Count - 1;
+        while (a.Words[first] == b.Words[first]) first++;
+        while (a.Words[last] == b.Words[last]) last--;
+        var x = a.Words[first..(last + 1)];
+        var y = b.Words[first..(last + 1)];
+        for (var lx = 1; lx < x.Length; lx++)
+            for (var ly = 1; lx + ly <= x.Length; ly++)
+            {
+                var middle = x[lx..^ly];
+                if (!y.SequenceEqual(x[^ly..].Concat(middle).Concat(x[..lx]))) continue;
+                // "a porch and a new path" / "a new path and a porch": a list in another order asks the same.
+                if (middle.All(w => w is "and" or "or" or "to" or "a" or "an" or "the" or "nor" or "with")) return null;
+                if (middle.Any(w => !HitLexicon.Function.Contains(w)))
+                    return $"'{string.Join(' ', x[..lx])}' and '{string.Join(' ', x[^ly..])}' trade places around '{string.Join(' ', middle)}'";
+            }
+        return null;
     }
 
     static bool SameLemma(string[] x, string[] y)
@@ -184,7 +199,9 @@ public sealed record QuestionDiff(IReadOnlyList<string> NovelAsked, IReadOnlyLis
                             trace?.Add($"{q.Words[k]}: {x} ~ {y}");
                             return true;
                         }
-        var abbreviation = Abbreviates(q, k, other) || AbbreviatedBy(q, k, other);
+        var abbreviation = Abbreviates(q, k, other) || AbbreviatedBy(q, k, other)
+            || (HitLexicon.ShortForms.TryGetValue(q.Words[k], out var full) && other.Words.Contains(full))
+            || other.Words.Any(w => HitLexicon.ShortForms.TryGetValue(w, out var f) && f == q.Words[k]);
         trace?.Add($"{q.Words[k]}: {(abbreviation ? "abbreviation" : "unexplained")}");
         return abbreviation;
     }

@@ -78,16 +78,16 @@ public sealed class HitDecisionTuningTests(ITestOutputHelper output)
         var guard = new RewriteProxy.Cache.AnchorGuard();
         var at = OptionsReader.DefaultHitSimilarity;
         output.WriteLine($"dev part, HitSimilarity {at:F2}: near-misses served / paraphrases served");
-        output.WriteLine("| senses per part of speech | hypernyms | near-misses served | paraphrases served |");
-        output.WriteLine("| --- | --- | --- | --- |");
-        foreach (var depth in new[] { 1, 2, 3, 4, 6, 99 })
+        output.WriteLine("| senses per part of speech | for the other word | hypernyms | near-misses served | paraphrases served |");
+        output.WriteLine("| --- | --- | --- | --- | --- |");
+        foreach (var (depth, other) in new[] { (1, 1), (2, 2), (3, 3), (4, 4), (6, 6), (99, 99), (1, 99), (2, 6), (2, 99), (3, 6), (3, 99) })
             foreach (var hypernyms in new[] { false, true })
             {
-                var decision = new RewriteProxy.Cache.HitDecision(guard, RewriteProxy.Cache.WordSenses.Default.With(depth, hypernyms));
+                var decision = new RewriteProxy.Cache.HitDecision(guard, RewriteProxy.Cache.WordSenses.Default.With(depth, hypernyms, other));
                 var dev = HitCorpusMeasure.Measure(decision).Where(m => m.Pair.Part == "dev").ToList();
                 var near = dev.Where(m => !m.Pair.IsParaphrase).ToList();
                 var para = dev.Where(m => m.Pair.IsParaphrase).ToList();
-                output.WriteLine($"| {(depth == 99 ? "all" : depth)} | {(hypernyms ? "yes" : "no")} | {near.Count(m => m.ServedByDecision(at))}/{near.Count} | {para.Count(m => m.ServedByDecision(at))}/{para.Count} |");
+                output.WriteLine($"| {(depth == 99 ? "all" : depth)} | {(other == 99 ? "all" : other)} | {(hypernyms ? "yes" : "no")} | {near.Count(m => m.ServedByDecision(at))}/{near.Count} | {para.Count(m => m.ServedByDecision(at))}/{para.Count} |");
             }
     }
 }

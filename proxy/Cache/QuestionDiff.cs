@@ -8,13 +8,17 @@ namespace RewriteProxy.Cache;
 /// </summary>
 public sealed partial class QuestionWords
 {
-    internal QuestionWords(string[] raw, string[] words, string[][] lemmas, WordClass[] classes)
+    internal QuestionWords(string[] raw, string[] words, string[][] lemmas, WordClass[] classes, WordUnit[] units)
     {
         Raw = raw;
         Words = words;
         Lemmas = lemmas;
         Classes = classes;
+        Units = units;
     }
+
+    /// <summary>Every word's lemmas, and every compound of two or three words that WordNet knows ("pay back", "first aid kit"), with the words it covers.</summary>
+    internal WordUnit[] Units { get; }
 
     internal string[] Raw { get; }
     internal string[] Words { get; }
@@ -41,7 +45,29 @@ public sealed partial class QuestionWords
         var words = raw.Select(w => w.ToLowerInvariant()).ToArray();
         var lemmas = words.Select(w => w.Any(char.IsDigit) ? [w] : senses.Lemmas(w)).ToArray();
         var classes = words.Select((w, i) => Classify(w, lemmas[i])).ToArray();
-        return new QuestionWords([.. raw], words, lemmas, classes);
+        var units = new List<WordUnit>();
+        for (var k = 0; k < words.Length; k++)
+        {
+            if (classes[k] == WordClass.Number) continue;
+            units.Add(new WordUnit(k, 1, lemmas[k]));
+            for (var len = 2; len <= 3 && k + len <= words.Length; len++)
+            {
+                var compound = string.Join(' ', words[k..(k + len)]);
+                if (senses.Knows(compound)) units.Add(new WordUnit(k, len, [compound]));
+                // "paying back" → "pay back"
+                var tail = string.Join(' ', words[(k + 1)..(k + len)]);
+                foreach (var lemma in lemmas[k])
+                {
+                    var head = lemma + " " + tail;
+                    if (head != compound && senses.Knows(head))
+                    {
+                        units.Add(new WordUnit(k, len, [head]));
+                        break;
+                    }
+                }
+            }
+        }
+        return new QuestionWords([.. raw], words, lemmas, classes, [.. units]);
     }
 
     static WordClass Classify(string word, string[] lemmas)
@@ -52,6 +78,9 @@ public sealed partial class QuestionWords
         return WordClass.Content;
     }
 }
+
+/// <summary>A word or a compound WordNet knows, by the words it covers.</summary>
+internal readonly record struct WordUnit(int Start, int Length, string[] Lemmas);
 
 /// <summary>How a word takes part in the comparison of two questions.</summary>
 internal enum WordClass : byte
@@ -190,52 +219,23 @@ public sealed record QuestionDiff(IReadOnlyList<string> NovelAsked, IReadOnlyLis
     /// </summary>
     static bool Explained(QuestionWords q, int k, QuestionWords other, WordSenses senses, List<string>? trace)
     {
-        foreach (var unit in Units(q, k, senses))
-            foreach (var otherUnit in AllUnits(other, senses))
-                foreach (var x in unit)
-                    foreach (var y in otherUnit)
+        foreach (var unit in q.Units)
+        {
+            if (k < unit.Start || k >= unit.Start + unit.Length) continue;
+            foreach (var otherUnit in other.Units)
+                foreach (var x in unit.Lemmas)
+                    foreach (var y in otherUnit.Lemmas)
                         if (senses.SameSense(x, y))
                         {
                             trace?.Add($"{q.Words[k]}: {x} ~ {y}");
                             return true;
                         }
+        }
         var abbreviation = Abbreviates(q, k, other) || AbbreviatedBy(q, k, other)
             || (HitLexicon.ShortForms.TryGetValue(q.Words[k], out var full) && other.Words.Contains(full))
             || other.Words.Any(w => HitLexicon.ShortForms.TryGetValue(w, out var f) && f == q.Words[k]);
         trace?.Add($"{q.Words[k]}: {(abbreviation ? "abbreviation" : "unexplained")}");
         return abbreviation;
-    }
-
-    /// <summary>The lemmas of word k, then of each compound (two or three words) around it that WordNet knows.</summary>
-    static IEnumerable<string[]> Units(QuestionWords q, int k, WordSenses senses)
-    {
-        yield return q.Lemmas[k];
-        for (var start = Math.Max(0, k - 2); start <= k; start++)
-            for (var len = 2; len <= 3; len++)
-            {
-                if (start + len > q.Count || start + len <= k) continue;
-                var compound = string.Join(' ', q.Words[start..(start + len)]);
-                if (senses.Knows(compound)) yield return [compound];
-                // "paying back" → "pay back"
-                var head = q.Lemmas[start].Select(l => string.Join(' ', [l, .. q.Words[(start + 1)..(start + len)]])).FirstOrDefault(senses.Knows);
-                if (head is not null && head != compound) yield return [head];
-            }
-    }
-
-    static IEnumerable<string[]> AllUnits(QuestionWords q, WordSenses senses)
-    {
-        for (var k = 0; k < q.Count; k++)
-        {
-            if (q.Classes[k] == WordClass.Number) continue;
-            yield return q.Lemmas[k];
-            for (var len = 2; len <= 3 && k + len <= q.Count; len++)
-            {
-                var compound = string.Join(' ', q.Words[k..(k + len)]);
-                if (senses.Knows(compound)) yield return [compound];
-                var head = q.Lemmas[k].Select(l => string.Join(' ', [l, .. q.Words[(k + 1)..(k + len)]])).FirstOrDefault(senses.Knows);
-                if (head is not null && head != compound) yield return [head];
-            }
-        }
     }
 
     /// <summary>Word k is an abbreviation of words in the other question: their initials ("IDP"), or their letters in order from the first ("appt", "ID").</summary>

@@ -10,6 +10,7 @@ namespace RewriteProxy.Benchmarks.Decision;
 /// Run: dotnet run -c Release --project tests/RewriteProxy.Benchmarks -- --filter '*HitDecision*'
 /// </summary>
 [MemoryDiagnoser]
+[MedianColumn]
 public class HitDecisionBenchmarks
 {
     /// <summary>Pairs like the dev part of the hit corpus (invented): paraphrases that are served, and near-misses refused late.</summary>

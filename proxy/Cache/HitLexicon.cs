@@ -54,6 +54,13 @@ internal static class HitLexicon
         ["fri"] = "friday", ["sat"] = "saturday", ["sun"] = "sunday",
     }.ToFrozenDictionary(StringComparer.Ordinal);
 
+    /// <summary>Subjects, question words and clause openers: a part that holds one is a clause, and clauses move freely.</summary>
+    public static readonly FrozenSet<string> ClauseWords = FrozenSet.ToFrozenSet(
+    [
+        "i", "you", "we", "they", "he", "she", "it", "who", "what", "which", "when", "where", "why", "how", "if", "once",
+        "while", "because", "unless", "whether", "do", "does", "did", "is", "are", "can", "will",
+    ], StringComparer.Ordinal);
+
     /// <summary>Prepositions and particles: "opt in" / "opt out", "pick up" / "drop off" differ only in them.</summary>
     public static readonly FrozenSet<string> Particles = FrozenSet.ToFrozenSet(
     [

@@ -120,11 +120,12 @@ public sealed record QuestionDiff(IReadOnlyList<string> NovelAsked, IReadOnlyLis
             pb = j;
         }
 
-        var swap = Permuted(a, b);
+        var swap = Permuted(a, b, out var reordered);
         var byA = a.Words.Count(w => w == "by");
         var byB = b.Words.Count(w => w == "by");
-        // A passive agent ("released by the card issuer" / "the card issuer releases") moves a part without changing its role.
-        for (var x = 0; x < gaps.Count && swap is null && byA == byB; x++)
+        // A passive agent ("released by the card issuer" / "the card issuer releases") moves a part without changing its
+        // role; the same words reordered were judged above.
+        for (var x = 0; x < gaps.Count && swap is null && byA == byB && !reordered; x++)
             for (var y = x + 1; y < gaps.Count && swap is null; y++)
                 if (SameContent(a, gaps[x].A, b, gaps[y].B) && SameContent(b, gaps[x].B, a, gaps[y].A))
                     swap = $"'{Text(a, gaps[x].A)}' and '{Text(a, gaps[y].A)}' trade places";
@@ -163,10 +164,14 @@ public sealed record QuestionDiff(IReadOnlyList<string> NovelAsked, IReadOnlyLis
     /// companion pass holder bring a carer"). Clauses moved as a whole ("If I miss a resit, do I …" / "Do I … if I miss a
     /// resit") and lists in another order ("bank or building society") are not such a trade.
     /// </summary>
-    static string? Permuted(QuestionWords a, QuestionWords b)
+    static string? Permuted(QuestionWords a, QuestionWords b, out bool reordered)
     {
+        reordered = false;
         if (a.Count != b.Count || a.Words.SequenceEqual(b.Words)) return null;
         if (!a.Words.Order(StringComparer.Ordinal).SequenceEqual(b.Words.Order(StringComparer.Ordinal))) return null;
+        reordered = true;
+        for (var k = 1; k < a.Count; k++)
+            if (a.Words[k..].Concat(a.Words[..k]).SequenceEqual(b.Words)) return null;
         // The stretch that differs: X · middle · Y in one, Y · middle · X in the other.
         int first = 0, last = a.Count - 1;
         while (a.Words[first] == b.Words[first]) first++;
@@ -180,6 +185,8 @@ public sealed record QuestionDiff(IReadOnlyList<string> NovelAsked, IReadOnlyLis
                 if (!y.SequenceEqual(x[^ly..].Concat(middle).Concat(x[..lx]))) continue;
                 // "a porch and a new path" / "a new path and a porch": a list in another order asks the same.
                 if (middle.All(w => w is "and" or "or" or "to" or "a" or "an" or "the" or "nor" or "with")) return null;
+                // A clause moved with its subject or opener ("Once I submit a claim, who approves it?") is not a trade of roles.
+                if (x[..lx].Concat(x[^ly..]).Any(HitLexicon.ClauseWords.Contains)) return null;
                 if (middle.Any(w => !HitLexicon.Function.Contains(w)))
                     return $"'{string.Join(' ', x[..lx])}' and '{string.Join(' ', x[^ly..])}' trade places around '{string.Join(' ', middle)}'";
             }

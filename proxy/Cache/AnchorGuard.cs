@@ -19,8 +19,11 @@ public static class AnchorReason
     /// <summary>The hit decision: a word was replaced, added or dropped, and WordNet has no sense the two share ("diesel" / "petrol").</summary>
     public const string Substitution = "substitution";
 
-    /// <summary>Every reason, in the order the anchor guard and then the hit decision check them.</summary>
-    public static readonly IReadOnlyList<string> All = [Negation, Number, Unit, Identifier, Contrast, Role, Substitution];
+    /// <summary>The anchor guard's own reasons, in the order it checks them.</summary>
+    public static readonly IReadOnlyList<string> Guard = [Negation, Number, Unit, Identifier, Contrast];
+
+    /// <summary>Every reason (the metric label values), in the order the anchor guard and then the hit decision check them.</summary>
+    public static readonly IReadOnlyList<string> All = [.. Guard, Role, Substitution];
 }
 
 /// <summary>

@@ -59,6 +59,30 @@ public sealed class HitPrecisionMeasureTests(ITestOutputHelper output)
         }
     }
 
+    /// <summary>
+    /// What the decision measured at the default HitSimilarity (DEVELOPERS.md, "Hit decision"): dev (tuned on) and test
+    /// (read once the decision was final). A change that serves more near-misses, or fewer paraphrases, fails here.
+    /// </summary>
+    static readonly Dictionary<string, (int MaxNearMisses, int MinParaphrases)> Measured = new()
+    {
+        ["dev"] = (1, 167),
+        ["test"] = (3, 70),
+    };
+
+    [Fact]
+    public void Decision_serves_no_more_near_misses_and_no_fewer_paraphrases_than_measured()
+    {
+        var at = OptionsReader.DefaultHitSimilarity;
+        foreach (var (part, (maxNear, minPara)) in Measured)
+        {
+            var rows = HitCorpusMeasure.Measure().Where(m => m.Pair.Part == part).ToList();
+            var near = rows.Count(m => !m.Pair.IsParaphrase && m.ServedByDecision(at));
+            var para = rows.Count(m => m.Pair.IsParaphrase && m.ServedByDecision(at));
+            Assert.True(near <= maxNear, $"{part}: {near} near-misses served, measured {maxNear}");
+            Assert.True(para >= minPara, $"{part}: {para} paraphrases served, measured {minPara}");
+        }
+    }
+
     static string Row(string label, string family, List<MeasuredPair> rows, double at) =>
         $"| {label} | {family} | {rows.Count} | {rows.Count(m => m.ServedByCosine(at))} | {rows.Count(m => m.ServedToday(at))} | {rows.Count(m => m.ServedByDecision(at))} |";
 

@@ -61,10 +61,18 @@ internal static class HitLexicon
         "while", "because", "unless", "whether", "do", "does", "did", "is", "are", "can", "will",
     ], StringComparer.Ordinal);
 
+    /// <summary>Words that join two parts without acting between them: "X and Y", "X of Y", "X is Y" read the same both ways round.</summary>
+    public static readonly FrozenSet<string> Linking = FrozenSet.ToFrozenSet(
+    [
+        "a", "an", "the", "and", "or", "nor", "to", "of", "for", "with", "is", "are", "was", "were", "be",
+        "my", "your", "his", "her", "its", "our", "their",
+    ], StringComparer.Ordinal);
+
     /// <summary>Prepositions and particles: "opt in" / "opt out", "pick up" / "drop off" differ only in them.</summary>
     public static readonly FrozenSet<string> Particles = FrozenSet.ToFrozenSet(
     [
         "in", "out", "on", "off", "up", "down", "over", "under", "above", "below", "before", "after", "within", "into",
         "onto", "from", "by", "with", "through", "across", "between", "back", "away", "during", "until", "till", "since",
+        "per", "via",
     ], StringComparer.Ordinal);
 }

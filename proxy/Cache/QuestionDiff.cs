@@ -187,7 +187,8 @@ public sealed record QuestionDiff(IReadOnlyList<string> NovelAsked, IReadOnlyLis
                 if (middle.All(w => w is "and" or "or" or "to" or "a" or "an" or "the" or "nor" or "with")) return null;
                 // A clause moved with its subject or opener ("Once I submit a claim, who approves it?") is not a trade of roles.
                 if (x[..lx].Concat(x[^ly..]).Any(HitLexicon.ClauseWords.Contains)) return null;
-                if (middle.Any(w => !HitLexicon.Function.Contains(w)))
+                // Something that acts between them: a verb ("pay", "need"), not only articles, possessives and "is".
+                if (middle.Any(w => !HitLexicon.Linking.Contains(w)))
                     return $"'{string.Join(' ', x[..lx])}' and '{string.Join(' ', x[^ly..])}' trade places around '{string.Join(' ', middle)}'";
             }
         return null;
@@ -250,7 +251,8 @@ public sealed record QuestionDiff(IReadOnlyList<string> NovelAsked, IReadOnlyLis
     {
         var word = q.Words[k];
         var raw = q.Raw[k];
-        var looksAbbreviated = raw.Length >= 2 && (raw.Count(char.IsUpper) >= 2 || !WordSenses.Default.Knows(word));
+        var looksAbbreviated = raw.Length >= 2 && !HitLexicon.Function.Contains(word) && !HitLexicon.Particles.Contains(word)
+            && (raw.Count(char.IsUpper) >= 2 || !WordSenses.Default.Knows(word));
         if (!looksAbbreviated || word.Length < 2) return false;
         for (var s = 0; s + word.Length <= other.Count; s++)
         {
@@ -269,7 +271,8 @@ public sealed record QuestionDiff(IReadOnlyList<string> NovelAsked, IReadOnlyLis
         {
             var abbreviation = other.Words[j];
             var raw = other.Raw[j];
-            if (abbreviation.Length < 2 || !(raw.Count(char.IsUpper) >= 2 || !WordSenses.Default.Knows(abbreviation))) continue;
+            if (abbreviation.Length < 2 || HitLexicon.Function.Contains(abbreviation) || HitLexicon.Particles.Contains(abbreviation)
+                || !(raw.Count(char.IsUpper) >= 2 || !WordSenses.Default.Knows(abbreviation))) continue;
             // k is one of the words the initials stand for, or the word the letters come from.
             for (var s = Math.Max(0, k - abbreviation.Length + 1); s <= k && s + abbreviation.Length <= q.Count; s++)
             {

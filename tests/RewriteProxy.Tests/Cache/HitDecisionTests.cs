@@ -49,6 +49,8 @@ public sealed class HitDecisionTests
     [InlineData("How do I opt in to the salary sacrifice pension scheme?", "How do I opt out of the salary sacrifice pension scheme?")]
     [InlineData("Is the Christmas bonus paid to all employees?", "Is the Christmas bonus paid only to permanent employees?")]
     [InlineData("Can I bring a towel?", "Must I bring a towel?")]
+    // "per" is a preposition, not an abbreviation of "person".
+    [InlineData("Is the parking permit issued per person?", "Is the parking permit issued per household?")]
     public void A_changed_word_without_a_shared_sense_is_refused_as_substitution(string asked, string cached) =>
         Refuses(asked, cached, AnchorReason.Substitution);
 
@@ -56,6 +58,8 @@ public sealed class HitDecisionTests
     [InlineData("Does the renter reimburse the company for a parking fine?", "Does the company reimburse the renter for a parking fine?")]
     [InlineData("Can a companion pass holder bring a carer along for free?", "Can a carer bring a companion pass holder along for free?")]
     [InlineData("Does my line manager need to approve my timesheet before payroll does?", "Does payroll need to approve my timesheet before my line manager does?")]
+    // "need" acts between the two parts even though obligation words are ignored in the substitution check.
+    [InlineData("Does the tenant need the landlord's consent to sublet?", "Does the landlord need the tenant's consent to sublet?")]
     public void Parts_that_trade_places_are_refused_as_role(string asked, string cached) => Refuses(asked, cached, AnchorReason.Role);
 
     [Theory]

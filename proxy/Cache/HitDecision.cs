@@ -13,8 +13,7 @@ public sealed class HitDecision
     readonly AnchorGuard _guard;
     readonly WordSenses _senses;
 
-    /// <summary>A decision over the embedded WordNet tables, loaded here once per process (docs/measurements/precision.md
-    /// has the time it takes), so that no lookup waits for them.</summary>
+    /// <summary>A decision over the embedded WordNet tables, loaded here once per process, so that no lookup waits for them.</summary>
     public HitDecision(AnchorGuard guard) : this(guard, WordSenses.Default) { }
 
     internal HitDecision(AnchorGuard guard, WordSenses senses)
@@ -27,6 +26,8 @@ public sealed class HitDecision
     public HitQuestion Read(string question) => new(question, _guard.Extract(question), QuestionWords.Read(question, _senses));
 
     /// <summary>Serve or refuse <paramref name="cached"/> for <paramref name="asked"/>; a refusal names its reason (<see cref="AnchorReason"/>).</summary>
+    /// <param name="similarity">The candidate's similarity, already at least the lane's HitSimilarity. The rules do not read it
+    /// today; it is part of the call so that a decision weighing it (a learned combiner, not built yet) needs no new call site.</param>
     public AnchorVerdict Decide(HitQuestion asked, HitQuestion cached, double similarity)
     {
         var anchors = _guard.Compare(asked.Anchors, cached.Anchors);
@@ -35,7 +36,7 @@ public sealed class HitDecision
             return AnchorVerdict.Refused(AnchorReason.Substitution, $"obligation: asked {Obliges(asked.Words)}, cached {Obliges(cached.Words)}");
         var diff = QuestionDiff.Compare(asked.Words, cached.Words, _senses);
         if (diff.Swap is { } swap) return AnchorVerdict.Refused(AnchorReason.Role, swap);
-        if (diff.Novel == 1 && AgentAdded(asked.Words, cached.Words, diff) is { } agent)
+        if (diff.Novel == 1 && AgentAdded(asked.Words, cached.Words, diff) is not null)
             return AnchorVerdict.Agreed;
         if (diff.Novel > 0)
             return AnchorVerdict.Refused(AnchorReason.Substitution,

@@ -44,7 +44,7 @@ public sealed partial class QuestionWords
         }
         var words = raw.Select(w => w.ToLowerInvariant()).ToArray();
         var lemmas = words.Select(w => w.Any(char.IsDigit) ? [w] : senses.Lemmas(w)).ToArray();
-        var classes = words.Select((w, i) => Classify(w, lemmas[i])).ToArray();
+        var classes = words.Select(Classify).ToArray();
         var units = new List<WordUnit>();
         for (var k = 0; k < words.Length; k++)
         {
@@ -70,7 +70,7 @@ public sealed partial class QuestionWords
         return new QuestionWords([.. raw], words, lemmas, classes, [.. units]);
     }
 
-    static WordClass Classify(string word, string[] lemmas)
+    static WordClass Classify(string word)
     {
         if (word.Any(char.IsDigit) || AnchorLexicon.Cardinals.ContainsKey(word) || HitLexicon.NumberWords.Contains(word)) return WordClass.Number;
         if (HitLexicon.Function.Contains(word)) return WordClass.Function;
@@ -233,7 +233,7 @@ public sealed record QuestionDiff(IReadOnlyList<string> NovelAsked, IReadOnlyLis
             foreach (var otherUnit in other.Units)
                 foreach (var x in unit.Lemmas)
                     foreach (var y in otherUnit.Lemmas)
-                        if (senses.SameSense(x, y))
+                        if (senses.SameSense(x, y) || HitLexicon.Synonyms.Contains((x, y)) || HitLexicon.Synonyms.Contains((y, x)))
                         {
                             trace?.Add($"{q.Words[k]}: {x} ~ {y}");
                             return true;

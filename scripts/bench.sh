@@ -1,31 +1,58 @@
 #!/usr/bin/env bash
 # Loopback benchmarks of the Release proxy (not run in CI). Every process it starts is recorded by PID and ended by PID.
+# One command per subject, and `all` for every subject in one run followed by the ratios against issue #16's targets:
 #
-#   scripts/bench.sh               throughput and latency: upstream alone, RewriteProxy passthrough, nginx as a plain
-#                                  reverse proxy (JSON and SSE), the request-log A/B, exact and semantic lane hits
-#   scripts/bench.sh soak [min]    mixed traffic at a bounded rate for min minutes (default 10); VmRSS sampled every
-#                                  10 s; exits 1 when it grows more than 5 % after the 2-minute warm-up
+#   scripts/bench.sh all            fanout + hits + passthrough, then one table of ratios and verdicts
+#   scripts/bench.sh fanout         N new SSE streams at once (upstream: 50 events 20 ms apart) direct, through nginx,
+#                                   through RewriteProxy and through a bare Kestrel+YARP forwarder (the stack's floor):
+#                                   CPU time of the middle process (/proc), TTFB, gaps between
+#                                   events, arrival lag; then the proxy's resident memory (VmRSS) with the model loaded
+#   scripts/bench.sh rss            the same run, one round: the resident-memory figure
+#   scripts/bench.sh hits           exact and semantic hit latency of the proxy process against the bare model run
+#   scripts/bench.sh passthrough    small JSON passthrough with wrk: direct, nginx, RewriteProxy, bare Kestrel+YARP
+#   scripts/bench.sh lanes          wrk throughput of exact and semantic hits, and the request-log A/B
+#   scripts/bench.sh soak [min]     mixed traffic at a bounded rate for min minutes (default 10); VmRSS sampled every
+#                                   10 s; exits 1 when it grows more than 5 % after the 2-minute warm-up
 #
-# Knobs (environment): BENCH_DURATION (15s), BENCH_WARMUP (3s, unrecorded, before each run), BENCH_CONNECTIONS (32), BENCH_PIN (1), BENCH_WARMUP_S (120),
-# BENCH_SAMPLE_S (10), BENCH_SOAK_CONNECTIONS (4), BENCH_DELAY_MS (100), BENCH_MAX_RSS_GROWTH (5).
-# Why these: 15 s at 32 connections is long enough for the tiered JIT to settle and short enough to repeat; 32
-# connections keep every process busy without measuring a queue; 2 wrk threads = this machine's 2 cores (wrk's own
-# advice: threads no more than cores).
+# Knobs (environment):
+#   BENCH_ROUNDS (3)           measured rounds per target; targets take turns within a round, ratios use the median
+#   BENCH_STREAMS (300)        fan-out streams per round
+#   BENCH_FANOUT_WARMUP (5)    fan-out warm-up rounds per target, printed but not counted: the proxy's first rounds
+#                              after start cost ~2x the CPU of later ones (JIT tiering; see docs/measurements)
+#   BENCH_FANOUT_PIN (0)       1: pin the fan-out's middle process to core 0 (default: every process sees both cores,
+#                              as the proxy would in production; the embedder then loads as it ships)
+#   BENCH_PIN (1)              wrk runs: the process under test alone on core 0, wrk + upstream on core 1
+#   BENCH_DURATION (10s), BENCH_WARMUP (3s, unrecorded), BENCH_CONNECTIONS (16)   wrk runs
+#   BENCH_PROXY_ARGS, BENCH_PROXY_ENV   extra arguments / VAR=value words for every RewriteProxy started (A/B runs)
+#   BENCH_B_ARGS, BENCH_B_ENV, BENCH_B_BIN   fanout and hits: also start a second RewriteProxy with these arguments,
+#                              environment or binary (e.g. a build of the previous commit), measured as "proxyB" in the
+#                              same rounds: an A/B in one run (only the ratios of one run are compared)
+#   BENCH_HIT_CALLS (300), BENCH_HIT_BLOCKS (5)   hits: sequential calls per case and block
+#   BENCH_WARMUP_S (120), BENCH_SAMPLE_S (10), BENCH_SOAK_CONNECTIONS (4), BENCH_DELAY_MS (100), BENCH_MAX_RSS_GROWTH (5)
+# Why these: 300 streams is the issue's load; 3 rounds is the least that shows the spread; 16 connections is the
+# issue's wrk load; 2 wrk threads = this machine's 2 cores (wrk's own advice: threads no more than cores).
 set -euo pipefail
 cd "$(dirname "$0")/.."
 root=$(pwd)
 
-mode=${1:-run}
+mode=${1:-all}
 soak_minutes=${2:-10}
-duration=${BENCH_DURATION:-15s}
+duration=${BENCH_DURATION:-10s}
 warmup=${BENCH_WARMUP:-3s}
-connections=${BENCH_CONNECTIONS:-32}
+connections=${BENCH_CONNECTIONS:-16}
+rounds=${BENCH_ROUNDS:-3}
+streams=${BENCH_STREAMS:-300}
 threads=2
 pin=${BENCH_PIN:-1}
 upstream_port=${BENCH_UPSTREAM_PORT:-18091}
 nginx_port=${BENCH_NGINX_PORT:-18092}
 proxy_port=${BENCH_PROXY_PORT:-18093}
 forwarder_port=${BENCH_FORWARDER_PORT:-18094}
+sse_port=${BENCH_SSE_PORT:-18095}
+read -r -a proxy_args <<< "${BENCH_PROXY_ARGS:-}"
+read -r -a proxy_env <<< "${BENCH_PROXY_ENV:-}"
+case "$mode" in all|fanout|rss|hits|passthrough|lanes|soak) ;; *)
+  echo "usage: scripts/bench.sh [all | fanout | rss | hits | passthrough | lanes | soak [minutes]]" >&2; exit 2 ;; esac
 
 # ---- what it needs ------------------------------------------------------------------------------------------------
 need=()
@@ -46,10 +73,12 @@ export DOTNET_CLI_TELEMETRY_OPTOUT=1 DOTNET_NOLOGO=1
 echo "bench.sh: building Release"
 dotnet build proxy/RewriteProxy.csproj -c Release -v q -nologo >/dev/null
 proxy_bin="$root/proxy/bin/Release/net10.0/rewriteproxy"
-if [ "$mode" = run ]; then
-  dotnet build scripts/bench/forwarder/Forwarder.csproj -c Release -v q -nologo >/dev/null
-fi
+case "$mode" in all|fanout|rss|passthrough|lanes) dotnet build scripts/bench/forwarder/Forwarder.csproj -c Release -v q -nologo >/dev/null ;; esac
+case "$mode" in all|fanout|rss) dotnet build scripts/bench/fanout/Fanout.csproj -c Release -v q -nologo >/dev/null ;; esac
+case "$mode" in all|hits) dotnet build tests/RewriteProxy.Benchmarks/RewriteProxy.Benchmarks.csproj -c Release -v q -nologo >/dev/null ;; esac
 forwarder_bin="$root/scripts/bench/forwarder/bin/Release/net10.0/Forwarder"
+fanout_bin="$root/scripts/bench/fanout/bin/Release/net10.0/fanout"
+hits_dll="$root/tests/RewriteProxy.Benchmarks/bin/Release/net10.0/RewriteProxy.Benchmarks.dll"
 
 # ---- processes, by PID ----------------------------------------------------------------------------------------------
 work=$(mktemp -d /tmp/rewriteproxy-bench.XXXXXX)
@@ -94,11 +123,11 @@ for piece in "Riverton" " bike-share" " rides" " are" " free" " for" " thirty" "
 done
 sse_text+='data: {"id":"chatcmpl-bench","object":"chat.completion.chunk","created":1767225600,"model":"bench-model","choices":[{"index":0,"delta":{},"finish_reason":"stop"}]}\n\ndata: [DONE]\n\n'
 
-fill() { # template output
-  local esc_json esc_sse
+fill() { # template output [upstream-port] [nginx-workers]
+  local esc_json esc_sse up=${3:-$upstream_port} workers=${4:-1}
   esc_json=$(printf '%s' "$completion_json" | sed -e 's/[\\&|]/\\&/g')
   esc_sse=$(printf '%s' "$sse_text" | sed -e 's/[\\&|]/\\&/g')
-  sed -e "s|@DIR@|$work|g" -e "s|@UPSTREAM_PORT@|$upstream_port|g" -e "s|@NGINX_PORT@|$nginx_port|g" \
+  sed -e "s|@DIR@|$work|g" -e "s|@UPSTREAM_PORT@|$up|g" -e "s|@NGINX_PORT@|$nginx_port|g" -e "s|@WORKERS@|$workers|g" \
       -e "s|@JSON@|$esc_json|" -e "s|@SSE@|$esc_sse|" "$1" > "$2"
 }
 
@@ -110,13 +139,16 @@ chat_body() { # question [stream]
 start_upstream() {
   fill scripts/bench/upstream.nginx.conf "$work/upstream.conf"
   "${on_harness[@]}" "$nginx_bin" -p "$work" -c "$work/upstream.conf" -e "$work/upstream-error.log" 2>>"$work/upstream-error.log" &
-  pids+=($!)
+  upstream_pid=$!; pids+=($upstream_pid)
   wait_http "http://127.0.0.1:$upstream_port/v1/models"
 }
 
-start_nginx_proxy() {
-  fill scripts/bench/proxy.nginx.conf "$work/proxy.conf"
-  "${on_sut[@]}" "$nginx_bin" -p "$work" -c "$work/proxy.conf" -e "$work/proxy-error.log" 2>>"$work/proxy-error.log" &
+start_nginx_proxy() { # [upstream-port] [workers] [pin-prefix...]: nginx as a plain reverse proxy on nginx_port
+  local up=${1:-$upstream_port} workers=${2:-1}
+  shift 2 2>/dev/null || shift $#
+  local pin_cmd=("$@"); [ $# -eq 0 ] && pin_cmd=("${on_sut[@]}")
+  fill scripts/bench/proxy.nginx.conf "$work/proxy.conf" "$up" "$workers"
+  "${pin_cmd[@]}" "$nginx_bin" -p "$work" -c "$work/proxy.conf" -e "$work/proxy-error.log" 2>>"$work/proxy-error.log" &
   nginx_pid=$!; pids+=($nginx_pid)
   wait_http "http://127.0.0.1:$nginx_port/v1/models"
 }
@@ -128,13 +160,17 @@ start_forwarder() {
 }
 
 proxy_pid=""
+proxy_up=""     # upstream port of the next start_proxy (default: the nginx upstream)
+proxy_pin=()    # pin prefix of the next start_proxy (default: on_sut)
 start_proxy() { # name extra-args...
   local name=$1; shift
   mkdir -p "$work/$name"
+  # proxy_pin=(env) starts it unpinned: env with no assignments just runs the command.
+  local pin_cmd=("${on_sut[@]}"); [ ${#proxy_pin[@]} -gt 0 ] && pin_cmd=("${proxy_pin[@]}")
   # Started from the repository root, so it reads config/rewriteproxy.json (lanes draft and siblings) as shipped.
-  "${on_sut[@]}" "$proxy_bin" serve --urls "http://127.0.0.1:$proxy_port" \
-    "--Upstream:BaseUrl=http://127.0.0.1:$upstream_port/v1" "--Store:Path=$work/$name/cache.db" "$@" \
-    >"$work/$name/proxy.log" 2>&1 &
+  env "${proxy_env[@]}" "${pin_cmd[@]}" "$proxy_bin" serve --urls "http://127.0.0.1:$proxy_port" \
+    "--Upstream:BaseUrl=http://127.0.0.1:${proxy_up:-$upstream_port}/v1" "--Store:Path=$work/$name/cache.db" \
+    "${proxy_args[@]}" "$@" >"$work/$name/proxy.log" 2>&1 &
   proxy_pid=$!; pids+=($proxy_pid)
   wait_http "http://127.0.0.1:$proxy_port/readyz" 600
 }
@@ -193,17 +229,19 @@ verdict() { awk -v v="$1" -v op="$2" -v t="$3" 'BEGIN{ ok = (op=="<=") ? (v<=t) 
 
 machine() {
   echo "machine: $(nproc) cores, $(awk -F': ' '/model name/{print $2; exit}' /proc/cpuinfo), $(date -u +%Y-%m-%dT%H:%MZ), load $(loadavg)"
-  [ "$mode" = soak ] && return 0
+}
+
+wrk_settings() {
   echo "wrk: ${threads} threads, ${connections} connections, ${duration} after ${warmup} unrecorded; pinning: $([ ${#on_sut[@]} -gt 0 ] && echo 'under test on core 0, wrk + upstream on core 1' || echo off)"
 }
 
-run_throughput() {
+run_lanes() {
   local json_body stream_body
   json_body=$(chat_body "$question")
   stream_body=$(chat_body "$question" true)
-  machine
+  machine; wrk_settings
   start_upstream
-  start_nginx_proxy
+  start_nginx_proxy "$upstream_port" 1
   echo "passthrough (POST /v1/chat/completions, $(printf '%s' "$json_body" | wc -c)-byte body; JSON $(printf '%s' "$completion_json" | wc -c) bytes back):"
   measure direct-json      "http://127.0.0.1:$upstream_port/v1/chat/completions" "$json_body"
   start_proxy passthrough
@@ -310,5 +348,208 @@ run_soak() {
   echo "soak: ok"
 }
 
+# ---- stream fan-out and resident memory -------------------------------------------------------------------------------
+declare -A fig   # figures for the closing table: name -> value
+
+median() { sort -g | awk '{v[NR]=$1} END{ if (NR==0) print "nan"; else if (NR%2) print v[(NR+1)/2]; else printf "%.4f\n", (v[NR/2]+v[NR/2+1])/2 }'; }
+per_round() { # json jq-expression-over-round-r -> one value per round
+  local json=$1 expr=$2 r n
+  n=$(jq '[.[].Round] | max' "$json")
+  for r in $(seq 1 "$n"); do jq -r --argjson r "$r" "map(select(.Round==\$r)) | INDEX(.Target) | $expr" "$json"; done
+}
+rss_mb() { awk '/^VmRSS:/{printf "%.0f", $2/1024}' "/proc/$1/status"; }
+mem_detail() { # pid: what the resident memory is made of
+  awk '/^(Rss|Anonymous|Shared_Clean|Private_Clean|Private_Dirty):/{printf "%s %.0f MB  ", $1, $2/1024}' "/proc/$1/smaps_rollup"; echo
+}
+
+run_fanout() { # rounds
+  local n_rounds=${1:-$rounds} fan_sut=(env) fan_harness=(env) workers fan_warmup=${BENCH_FANOUT_WARMUP:-5}
+  workers=$(nproc)
+  if [ "${BENCH_FANOUT_PIN:-0}" = 1 ] && [ "$(nproc)" -ge 2 ]; then fan_sut=(taskset -c 0); fan_harness=(taskset -c 1); workers=1; fi
+  echo "== fanout: $streams new streams at once, upstream sends 50 SSE events 20 ms apart; pinning: $([ "${fan_sut[0]}" = env ] && echo "off (every process sees $(nproc) cores; nginx $workers workers)" || echo 'middle on core 0, upstream + client on core 1')"
+  machine
+  "${fan_harness[@]}" "$fanout_bin" upstream "http://127.0.0.1:$sse_port" 50 20 >"$work/sse-upstream.log" 2>&1 &
+  local sse_pid=$!; pids+=($sse_pid)
+  wait_http "http://127.0.0.1:$sse_port/v1/models"
+  start_nginx_proxy "$sse_port" "$workers" "${fan_sut[@]}"
+  proxy_up=$sse_port; proxy_pin=("${fan_sut[@]}")
+  start_proxy fanout
+  proxy_up=""; proxy_pin=()
+  # The floor of any Kestrel + YARP proxy: the bare forwarder (same client settings, nothing else) on the same upstream.
+  "${fan_sut[@]}" "$forwarder_bin" "http://127.0.0.1:$forwarder_port" "http://127.0.0.1:$sse_port" >"$work/forwarder.log" 2>&1 &
+  forwarder_pid=$!; pids+=($forwarder_pid)
+  wait_http "http://127.0.0.1:$forwarder_port/v1/models" 600
+  local rss_start; rss_start=$(rss_mb "$proxy_pid")
+  local b_target=() b_pid=""
+  if [ -n "${BENCH_B_ARGS:-}${BENCH_B_ENV:-}${BENCH_B_BIN:-}" ]; then
+    local b_args b_env b_port=$((proxy_port + 10))
+    read -r -a b_args <<< "${BENCH_B_ARGS:-}"; read -r -a b_env <<< "${BENCH_B_ENV:-}"
+    mkdir -p "$work/fanout-b"
+    env "${b_env[@]}" "${fan_sut[@]}" "${BENCH_B_BIN:-$proxy_bin}" serve --urls "http://127.0.0.1:$b_port" \
+      "--Upstream:BaseUrl=http://127.0.0.1:$sse_port/v1" "--Store:Path=$work/fanout-b/cache.db" "${b_args[@]}" \
+      >"$work/fanout-b/proxy.log" 2>&1 &
+    b_pid=$!; pids+=($b_pid)
+    wait_http "http://127.0.0.1:$b_port/readyz" 600
+    echo "  proxyB: env '${BENCH_B_ENV:-}' args '${BENCH_B_ARGS:-}' binary ${BENCH_B_BIN:-(same)}; VmRSS after start $(rss_mb "$b_pid") MB"
+    b_target=(--target "proxyB=http://127.0.0.1:$b_port/v1/chat/completions,pid=$b_pid")
+  fi
+  local json="$work/fanout.json" before after
+  before=$(loadavg)
+  "${fan_harness[@]}" "$fanout_bin" run --streams "$streams" --rounds "$n_rounds" --warmup-rounds "$fan_warmup" --json "$json" \
+    --target "direct=http://127.0.0.1:$sse_port/v1/chat/completions" \
+    --target "nginx=http://127.0.0.1:$nginx_port/v1/chat/completions,pid=$nginx_pid" \
+    --target "proxy=http://127.0.0.1:$proxy_port/v1/chat/completions,pid=$proxy_pid" \
+    --target "yarp=http://127.0.0.1:$forwarder_port/v1/chat/completions,pid=$forwarder_pid" "${b_target[@]}"
+  after=$(loadavg)
+  local rss_end; rss_end=$(rss_mb "$proxy_pid")
+  echo "  proxy VmRSS: $rss_start MB after start (model loaded), $rss_end MB after the fan-out; nginx (all processes): $(jq '[.[] | select(.Target=="nginx") | .RssMb] | max | floor' "$json") MB"
+  echo "  proxy memory after the fan-out: $(mem_detail "$proxy_pid")"
+  echo "  load $before -> $after"
+  if [ -n "$b_pid" ]; then
+    echo "  proxyB VmRSS after the fan-out: $(rss_mb "$b_pid") MB; $(mem_detail "$b_pid")"
+    echo "  per round, proxyB CPU / proxy CPU: $(per_round "$json" '.proxyB.CpuMs / .proxy.CpuMs' | awk '{printf "%.2f ", $1}')"
+    echo "  per round, added TTFB p99 (ms) proxyB: $(per_round "$json" '.proxyB.TtfbP99 - .direct.TtfbP99' | awk '{printf "%+.1f ", $1}')"
+    stop_tracked "$b_pid"
+  fi
+  stop_proxy; stop_tracked "$forwarder_pid"; stop_tracked "$nginx_pid"; stop_tracked "$sse_pid"
+
+  # Per round (targets measured back to back), then the median over rounds.
+  fig[fanout_cpu_ratio]=$(per_round "$json" '.proxy.CpuMs / .nginx.CpuMs' | median)
+  fig[fanout_cpu_proxy]=$(per_round "$json" '.proxy.CpuMs' | median)
+  fig[fanout_cpu_nginx]=$(per_round "$json" '.nginx.CpuMs' | median)
+  fig[fanout_cpu_yarp_ratio]=$(per_round "$json" '.yarp.CpuMs / .nginx.CpuMs' | median)
+  fig[fanout_ttfb_added_yarp]=$(per_round "$json" '.yarp.TtfbP99 - .direct.TtfbP99' | median)
+  fig[fanout_ttfb_added_proxy]=$(per_round "$json" '.proxy.TtfbP99 - .direct.TtfbP99' | median)
+  fig[fanout_ttfb_added_nginx]=$(per_round "$json" '.nginx.TtfbP99 - .direct.TtfbP99' | median)
+  fig[fanout_gap_added_proxy]=$(per_round "$json" '.proxy.GapP99 - .direct.GapP99' | median)
+  fig[fanout_gap_added_nginx]=$(per_round "$json" '.nginx.GapP99 - .direct.GapP99' | median)
+  fig[fanout_lag_added_proxy]=$(per_round "$json" '.proxy.LagP99 - .direct.LagP99' | median)
+  fig[fanout_lag_added_nginx]=$(per_round "$json" '.nginx.LagP99 - .direct.LagP99' | median)
+  fig[rss_start]=$rss_start
+  fig[rss_end]=$rss_end
+  echo "  per round, proxy CPU / nginx CPU: $(per_round "$json" '.proxy.CpuMs / .nginx.CpuMs' | awk '{printf "%.2f ", $1}')  bare YARP CPU / nginx CPU: $(per_round "$json" '.yarp.CpuMs / .nginx.CpuMs' | awk '{printf "%.2f ", $1}')"
+  echo "  per round, added TTFB p99 (ms) proxy: $(per_round "$json" '.proxy.TtfbP99 - .direct.TtfbP99' | awk '{printf "%+.1f ", $1}')  nginx: $(per_round "$json" '.nginx.TtfbP99 - .direct.TtfbP99' | awk '{printf "%+.1f ", $1}')"
+}
+
+# ---- hit latency against the bare model run ---------------------------------------------------------------------------
+run_hits() {
+  # Not pinned: the bare run and the proxy's embedder both use every core, as the target compares them.
+  local on_sut=() on_harness=()
+  echo "== hits: sequential lane calls on one connection against the bare model run (same question, same session settings)"
+  machine
+  start_upstream
+  proxy_pin=(env)
+  # CacheSize=0: each semantic hit runs the model, as a new paraphrase does (otherwise its vector comes from memory).
+  start_proxy hits --Embedding:CacheSize=0
+  proxy_pin=()
+  local json="$work/hits.json" b_url=() b_pid=""
+  if [ -n "${BENCH_B_ARGS:-}${BENCH_B_ENV:-}${BENCH_B_BIN:-}" ]; then
+    local b_args b_env b_port=$((proxy_port + 10))
+    read -r -a b_args <<< "${BENCH_B_ARGS:-}"; read -r -a b_env <<< "${BENCH_B_ENV:-}"
+    mkdir -p "$work/hits-b"
+    env "${b_env[@]}" "${BENCH_B_BIN:-$proxy_bin}" serve --urls "http://127.0.0.1:$b_port" \
+      "--Upstream:BaseUrl=http://127.0.0.1:$upstream_port/v1" "--Store:Path=$work/hits-b/cache.db" --Embedding:CacheSize=0 \
+      "${b_args[@]}" >"$work/hits-b/proxy.log" 2>&1 &
+    b_pid=$!; pids+=($b_pid)
+    wait_http "http://127.0.0.1:$b_port/readyz" 600
+    echo "  proxyB: env '${BENCH_B_ENV:-}' args '${BENCH_B_ARGS:-}' binary ${BENCH_B_BIN:-(same)}"
+    b_url=(--b-url "http://127.0.0.1:$b_port")
+  fi
+  dotnet "$hits_dll" hit-latency --url "http://127.0.0.1:$proxy_port" "${b_url[@]}" --calls "${BENCH_HIT_CALLS:-300}" \
+    --blocks "${BENCH_HIT_BLOCKS:-5}" --json "$json"
+  [ -n "$b_pid" ] && stop_tracked "$b_pid"
+  stop_proxy; stop_tracked "$upstream_pid"
+  fig[hit_semantic_p50]=$(jq '."semantic-hit".p50' "$json")
+  fig[hit_exact_p50]=$(jq '."exact-hit".p50' "$json")
+  fig[hit_bare2_p50]=$(jq '."bare-2-threads".p50' "$json")
+  fig[hit_bare1_p50]=$(jq '."bare-1-thread".p50' "$json")
+  fig[hit_bare2nospin_p50]=$(jq '."bare-2-threads-nospin".p50' "$json")
+  fig[hit_roundtrip_p50]=$(jq '."round-trip".p50' "$json")
+  fig[hit_semantic_ratio]=$(ratio "${fig[hit_semantic_p50]}" "${fig[hit_bare2_p50]}")
+  if [ -n "$b_pid" ]; then
+    echo "  proxyB: semantic hit p50 $(jq '."semantic-hit-b".p50' "$json") ms = $(ratio "$(jq '."semantic-hit-b".p50' "$json")" "${fig[hit_bare2_p50]}") x bare 2-thread; exact hit p50 $(jq '."exact-hit-b".p50' "$json") ms"
+  fi
+}
+
+# ---- small passthrough against nginx ----------------------------------------------------------------------------------
+run_passthrough() {
+  local json_body; json_body=$(chat_body "$question")
+  echo "== passthrough: POST /v1/chat/completions, $(printf '%s' "$json_body" | wc -c)-byte body, $(printf '%s' "$completion_json" | wc -c)-byte JSON back"
+  machine; wrk_settings
+  start_upstream
+  start_nginx_proxy "$upstream_port" 1
+  start_proxy passthrough
+  start_forwarder
+  local b_pid="" b_port=$((proxy_port + 10))
+  if [ -n "${BENCH_B_ARGS:-}${BENCH_B_ENV:-}${BENCH_B_BIN:-}" ]; then
+    local b_args b_env
+    read -r -a b_args <<< "${BENCH_B_ARGS:-}"; read -r -a b_env <<< "${BENCH_B_ENV:-}"
+    mkdir -p "$work/passthrough-b"
+    env "${b_env[@]}" "${on_sut[@]}" "${BENCH_B_BIN:-$proxy_bin}" serve --urls "http://127.0.0.1:$b_port" \
+      "--Upstream:BaseUrl=http://127.0.0.1:$upstream_port/v1" "--Store:Path=$work/passthrough-b/cache.db" "${b_args[@]}" \
+      >"$work/passthrough-b/proxy.log" 2>&1 &
+    b_pid=$!; pids+=($b_pid)
+    wait_http "http://127.0.0.1:$b_port/readyz" 600
+    echo "  proxyB: env '${BENCH_B_ENV:-}' args '${BENCH_B_ARGS:-}' binary ${BENCH_B_BIN:-(same)}"
+  fi
+  local r
+  for r in $(seq 1 "$rounds"); do
+    measure "direct-r$r" "http://127.0.0.1:$upstream_port/v1/chat/completions"  "$json_body"
+    measure "nginx-r$r"  "http://127.0.0.1:$nginx_port/v1/chat/completions"     "$json_body"
+    measure "proxy-r$r"  "http://127.0.0.1:$proxy_port/v1/chat/completions"     "$json_body"
+    measure "yarp-r$r"   "http://127.0.0.1:$forwarder_port/v1/chat/completions" "$json_body"
+    [ -n "$b_pid" ] && measure "proxyB-r$r" "http://127.0.0.1:$b_port/v1/chat/completions" "$json_body"
+  done
+  if [ -n "$b_pid" ]; then
+    echo "  per round, proxyB / proxy req/s: $(for r in $(seq 1 "$rounds"); do printf '%s ' "$(ratio "${rps[proxyB-r$r]}" "${rps[proxy-r$r]}")"; done)"
+    stop_tracked "$b_pid"
+  fi
+  stop_proxy; stop_tracked "$forwarder_pid"; stop_tracked "$nginx_pid"; stop_tracked "$upstream_pid"
+  fig[pass_ratio]=$(for r in $(seq 1 "$rounds"); do ratio "${rps[proxy-r$r]}" "${rps[nginx-r$r]}"; echo; done | median)
+  fig[pass_yarp_ratio]=$(for r in $(seq 1 "$rounds"); do ratio "${rps[yarp-r$r]}" "${rps[nginx-r$r]}"; echo; done | median)
+  fig[pass_proxy_yarp]=$(for r in $(seq 1 "$rounds"); do ratio "${rps[proxy-r$r]}" "${rps[yarp-r$r]}"; echo; done | median)
+  fig[pass_added_proxy]=$(for r in $(seq 1 "$rounds"); do minus "${p50[proxy-r$r]}" "${p50[direct-r$r]}"; echo; done | median)
+  fig[pass_added_nginx]=$(for r in $(seq 1 "$rounds"); do minus "${p50[nginx-r$r]}" "${p50[direct-r$r]}"; echo; done | median)
+  echo "  per round, proxy / nginx req/s: $(for r in $(seq 1 "$rounds"); do printf '%s ' "$(ratio "${rps[proxy-r$r]}" "${rps[nginx-r$r]}")"; done)"
+}
+
+# ---- the closing table ----------------------------------------------------------------------------------------------
+has() { [ -n "${fig[$1]:-}" ]; }
+summary() {
+  echo
+  # Timings taken while other work kept the cores busy are not comparable to a quiet run: say so beside the table.
+  # The benchmark itself keeps about 2 runnable, so the line is drawn one above the core count.
+  awk -v l="$(cut -d' ' -f1 /proc/loadavg)" -v n="$(nproc)" 'BEGIN{ if (l > n + 1) printf "WARNING: 1-minute load %s > %s cores + 1 (a run adds about 2 by itself): other work shared the machine; re-run in a quiet window before quoting these\n", l, n }'
+  echo "== ratios against the targets of issue #16 (medians over rounds; load now $(loadavg))"
+  echo "| figure | measured | target | verdict |"
+  echo "| --- | ---: | --- | --- |"
+  if has fanout_cpu_ratio; then
+    local ttfb_limit; ttfb_limit=$(awk -v n="${fig[fanout_ttfb_added_nginx]}" 'BEGIN{printf "%.1f", n+5}')
+    printf '| fan-out CPU time, proxy / nginx (%s vs %s ms) | %.2f | ≤ 1.5 | %s |\n' "${fig[fanout_cpu_proxy]}" "${fig[fanout_cpu_nginx]}" \
+      "${fig[fanout_cpu_ratio]}" "$(verdict "${fig[fanout_cpu_ratio]}" '<=' 1.5)"
+    printf '| fan-out added TTFB p99, proxy (nginx: %+.1f ms) | %+.1f ms | ≤ nginx + 5 = %s ms | %s |\n' "${fig[fanout_ttfb_added_nginx]}" \
+      "${fig[fanout_ttfb_added_proxy]}" "$ttfb_limit" "$(verdict "${fig[fanout_ttfb_added_proxy]}" '<=' "$ttfb_limit")"
+    printf '| fan-out, bare Kestrel+YARP: CPU / nginx; added TTFB p99 | %.2f; %+.1f ms | (the stack'"'"'s floor) | |\n' \
+      "${fig[fanout_cpu_yarp_ratio]}" "${fig[fanout_ttfb_added_yarp]}"
+    printf '| fan-out added gap p99, proxy / nginx | %+.1f / %+.1f ms | (streaming stays incremental) | |\n' "${fig[fanout_gap_added_proxy]}" "${fig[fanout_gap_added_nginx]}"
+    printf '| fan-out added arrival lag p99, proxy / nginx | %+.1f / %+.1f ms | | |\n' "${fig[fanout_lag_added_proxy]}" "${fig[fanout_lag_added_nginx]}"
+    printf '| proxy VmRSS after the fan-out (model loaded; %s MB at start) | %s MB = %.2f × 300 MB | ≤ 300 MB | %s |\n' "${fig[rss_start]}" \
+      "${fig[rss_end]}" "$(ratio "${fig[rss_end]}" 300)" "$(verdict "${fig[rss_end]}" '<=' 300)"
+  fi
+  if has hit_semantic_ratio; then
+    printf '| semantic hit p50 / bare 2-thread run p50 (%.3f / %.3f ms) | %.2f | ≤ 1.3 | %s |\n' "${fig[hit_semantic_p50]}" "${fig[hit_bare2_p50]}" \
+      "${fig[hit_semantic_ratio]}" "$(verdict "${fig[hit_semantic_ratio]}" '<=' 1.3)"
+    printf '| exact hit p50 (empty round trip %.3f ms) | %.3f ms | ≤ 0.5 ms | %s |\n' "${fig[hit_roundtrip_p50]}" "${fig[hit_exact_p50]}" \
+      "$(verdict "${fig[hit_exact_p50]}" '<=' 0.5)"
+    printf '| semantic hit p50 / bare run with the proxy'"'"'s session settings (2 threads, no spinning; %.3f ms) | %.2f | | |\n' \
+      "${fig[hit_bare2nospin_p50]}" "$(ratio "${fig[hit_semantic_p50]}" "${fig[hit_bare2nospin_p50]}")"
+  fi
+  if has pass_ratio; then
+    printf '| small passthrough req/s, proxy / nginx | %.2f | ≥ 0.5 | %s |\n' "${fig[pass_ratio]}" "$(verdict "${fig[pass_ratio]}" '>=' 0.5)"
+    printf '| small passthrough req/s, bare Kestrel+YARP / nginx; proxy / bare | %.2f; %.2f | (the stack'"'"'s floor) | |\n' "${fig[pass_yarp_ratio]}" "${fig[pass_proxy_yarp]}"
+    printf '| small passthrough added p50, proxy / nginx | %+.3f / %+.3f ms | | |\n' "${fig[pass_added_proxy]}" "${fig[pass_added_nginx]}"
+  fi
+}
+
 # One line, parsed whole before it runs: editing this file during a run cannot change what the run does next.
-case "$mode" in run) run_throughput ;; soak) run_soak "$soak_minutes" ;; *) echo "usage: scripts/bench.sh [run | soak [minutes]]" >&2; exit 2 ;; esac; exit $?
+case "$mode" in all) run_fanout; run_hits; run_passthrough; summary ;; fanout) run_fanout; summary ;; rss) run_fanout 1; summary ;; hits) run_hits; summary ;; passthrough) run_passthrough; summary ;; lanes) run_lanes ;; soak) run_soak "$soak_minutes" ;; esac; exit $?

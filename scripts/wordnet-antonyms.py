@@ -11,7 +11,7 @@ so that "allowed" / "forbidden" and "won" / "lost" are found without a run-time 
 
 Output: a '#' header, then one line per pair, sorted: word <TAB> antonym <TAB> parts of speech (letters of
 n, v, a, r; satellite adjectives count as a). Regular inflections are NOT added here: the guard reduces words
-to WordNet lemmas at run time with WordNet's own detachment rules (see DEVELOPERS.md ("Anchor guard")).
+to WordNet lemmas at run time with WordNet's own detachment rules (see docs/measurements/anchor-guard.md).
 
 Usage: scripts/wordnet-antonyms.py [--wordnet DIR] [--out FILE]   (default: print to standard output)
 """

@@ -5,7 +5,6 @@ using Microsoft.AspNetCore.Builder;
 using Microsoft.AspNetCore.Http;
 using Microsoft.AspNetCore.Routing;
 using RewriteProxy.Cache;
-using RewriteProxy.Hosting;
 using RewriteProxy.Wire;
 
 namespace RewriteProxy.Admin;
@@ -55,9 +54,10 @@ public static class AdminEndpoints
                     partition = e.PartitionHash,
                     question = e.Question,
                     content = e.Content,
-                    scores = JsonDocument.Parse(e.Scores).RootElement,
-                    created = DateTimeOffset.FromUnixTimeMilliseconds(e.Created),
-                    lastHit = DateTimeOffset.FromUnixTimeMilliseconds(e.LastHit),
+                    // Spelled as the store writes them (MaxDrift, Dropped, Drifts), as this listing always has.
+                    scores = JsonSerializer.SerializeToElement(e.Scores),
+                    created = e.Created,
+                    lastHit = e.LastHit,
                     hitCount = e.HitCount,
                 }),
             });
@@ -84,7 +84,7 @@ public static class AdminEndpoints
             TimeSpan? olderThan = null;
             if (request?.OlderThan is { } text)
             {
-                if (!OptionsReader.TryParseDuration(text, out var age) || age <= TimeSpan.Zero)
+                if (!DurationText.TryParse(text, out var age) || age <= TimeSpan.Zero)
                     return Error(400, $"olderThan = '{text}' is not a duration; use e.g. 7d, 12h, 30m.");
                 olderThan = age;
             }

@@ -15,7 +15,7 @@ internal sealed class AnchorAntonyms
     /// <summary>
     /// WordNet pairs the guard does not use, because one side is a sense almost nobody means in a question, or the
     /// pair is swapped freely in paraphrases. Each is listed with the measured or obvious false refusal it prevents
-    /// (DEVELOPERS.md ("Anchor guard") has the measurement).
+    /// (docs/measurements/anchor-guard.md has the measurement).
     /// </summary>
     public static readonly IReadOnlyList<(string Word, string Antonym, string Why)> Ignored =
     [
@@ -52,10 +52,10 @@ internal sealed class AnchorAntonyms
 
     readonly record struct Entry(string[] Antonyms, Pos Pos);
 
-    static readonly Lazy<AnchorAntonyms> s_default = new(LoadEmbedded, LazyThreadSafetyMode.ExecutionAndPublication);
+    static readonly Lazy<AnchorAntonyms> Embedded = new(LoadEmbedded, LazyThreadSafetyMode.ExecutionAndPublication);
 
     /// <summary>The embedded WordNet table with the ignore list and supplement applied.</summary>
-    public static AnchorAntonyms Default => s_default.Value;
+    public static AnchorAntonyms Default => Embedded.Value;
 
     readonly FrozenDictionary<string, Entry> _entries;
 

@@ -26,6 +26,8 @@ public sealed class HitDecision
     public HitQuestion Read(string question) => new(question, _guard.Extract(question), QuestionWords.Read(question, _senses));
 
     /// <summary>Serve or refuse <paramref name="cached"/> for <paramref name="asked"/>; a refusal names its reason (<see cref="AnchorReason"/>).</summary>
+    /// <param name="asked">The question asked now, read once for the lookup.</param>
+    /// <param name="cached">The stored question of the candidate.</param>
     /// <param name="similarity">The candidate's similarity, already at least the lane's HitSimilarity. The rules do not read it
     /// today; it is part of the call so that a decision weighing it (a learned combiner, not built yet) needs no new call site.</param>
     public AnchorVerdict Decide(HitQuestion asked, HitQuestion cached, double similarity)

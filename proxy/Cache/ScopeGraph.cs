@@ -3,7 +3,7 @@ using Cloud.Unum.USearch;
 
 namespace RewriteProxy.Cache;
 
-/// <summary>Tuning of the HNSW graph used for large scopes. Defaults are the ones measured in DEVELOPERS.md ("Vector index").</summary>
+/// <summary>Tuning of the HNSW graph used for large scopes. Defaults are the ones measured in docs/measurements/index.md.</summary>
 public sealed record HnswSettings
 {
     /// <summary>Neighbours per node (HNSW "M"). 16 is the library default and the common choice for a few hundred

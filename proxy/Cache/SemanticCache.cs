@@ -1,28 +1,15 @@
 using System.Diagnostics;
 using Microsoft.Extensions.Logging;
 using RewriteProxy.Embedding;
-using RewriteProxy.Hosting;
 using RewriteProxy.Telemetry;
 
 namespace RewriteProxy.Cache;
-
-/// <summary>How a lookup ended.</summary>
-public enum LookupKind { HitExact, HitSemantic, Miss }
-
-/// <summary>A lookup's result: the entry served on a hit, and the question vector (when one was computed) for the miss path.</summary>
-public sealed record LookupResult(LookupKind Kind, StoredEntry? Entry, double? Similarity, float[]? QuestionVector);
-
-/// <summary>The cache side failed; the caller fails open. <see cref="Reason"/> is a metric label: store | index | embedder.</summary>
-public sealed class CacheFailure(string reason, string message, Exception? inner = null) : Exception(message, inner)
-{
-    public string Reason { get; } = reason;
-}
 
 /// <summary>
 /// Exact lookup (normalised text, no embedding), then semantic lookup (nearest questions of the scope in the vector
 /// index, each checked by the anchor guard), over the store. Keeps the index in step with the store.
 /// </summary>
-public sealed class SemanticCache
+public sealed class SemanticCache : IRewriteCache
 {
     /// <summary>Semantic candidates checked per lookup: when the nearest one is refused (say, another year), the next may agree.</summary>
     public const int Candidates = 4;
@@ -32,16 +19,21 @@ public sealed class SemanticCache
     readonly IEmbedder _embedder;
     readonly AnchorGuard _guard;
     readonly HitDecision _decision;
+    readonly LaneTally _tally;
     readonly StoreOptions _options;
     readonly ILogger _log;
 
-    public SemanticCache(IRewriteStore store, VectorIndex index, IEmbedder embedder, AnchorGuard guard, StoreOptions options, ILogger log)
+    public SemanticCache(IRewriteStore store, VectorIndex index, IEmbedder embedder, AnchorGuard guard, LaneTally tally, StoreOptions options,
+        ILogger log)
     {
+        if (index.Dimensions != embedder.Dimension)
+            throw new ArgumentException($"The index holds vectors of {index.Dimensions} dimensions, the embedder makes {embedder.Dimension}.", nameof(index));
         _store = store;
         _index = index;
         _embedder = embedder;
         _guard = guard;
         _decision = new HitDecision(guard);
+        _tally = tally;
         _options = options;
         _log = log;
         _store.Removed += ids =>
@@ -51,16 +43,12 @@ public sealed class SemanticCache
         _store.Reset += _index.Clear;
     }
 
-    public IEmbedder Embedder => _embedder;
-    public IRewriteStore Store => _store;
-    public AnchorGuard Guard => _guard;
-
     /// <summary>Opens the store (migrations included); throws <see cref="StoreException"/> when it cannot.</summary>
     public void Start() => _store.Open();
 
     /// <summary>
     /// Rebuilds the vector index from the store, off the request path: a million entries take minutes to index
-    /// (DEVELOPERS.md). Meanwhile exact lookups work as usual and semantic lookups see what is loaded so far, so
+    /// (docs/measurements/index.md). Meanwhile exact lookups work as usual and semantic lookups see what is loaded so far, so
     /// a call that would have been a semantic hit is a miss until then. Logs how long it took.
     /// </summary>
     public Task LoadIndexAsync() => Task.Run(() =>
@@ -95,34 +83,32 @@ public sealed class SemanticCache
 
     DateTimeOffset MinCreated => DateTimeOffset.UtcNow - _options.Ttl;
 
-    /// <summary>Exact, then semantic.</summary>
-    /// <exception cref="CacheFailure">the store, the index or the embedder failed.</exception>
-    public LookupResult Lookup(LaneOptions lane, string scopeKey, string question, string normalized, string partition)
+    public LookupResult Lookup(CacheKey key, double minSimilarity)
     {
         StoredEntry? exact;
         try
         {
-            exact = _store.FindExact(scopeKey, normalized, MinCreated);
+            exact = _store.FindExact(key.ScopeKey, key.Normalized, MinCreated);
         }
         catch (StoreException e)
         {
-            throw new CacheFailure("store", e.Message, e);
+            throw new CacheFailure(FailOpenReason.Store, e.Message, e);
         }
         if (exact is not null) return new LookupResult(LookupKind.HitExact, exact, null, null);
 
-        var vector = Embed(question);
+        var vector = Embed([key.Question])[0];
         IReadOnlyList<(long Id, float Similarity)> near;
         try
         {
-            near = _index.Search(scopeKey, vector, Candidates, (float)lane.HitSimilarity);
+            near = _index.Search(key.ScopeKey, vector, Candidates, (float)minSimilarity);
         }
         catch (Exception e) when (e is not OutOfMemoryException)
         {
-            throw new CacheFailure("index", e.Message, e);
+            throw new CacheFailure(FailOpenReason.Index, e.Message, e);
         }
         if (near.Count == 0) return new LookupResult(LookupKind.Miss, null, null, vector);
 
-        var asked = _decision.Read(question);
+        var asked = _decision.Read(key.Question);
         foreach (var (id, similarity) in near)
         {
             StoredEntry? entry;
@@ -132,22 +118,20 @@ public sealed class SemanticCache
             }
             catch (StoreException e)
             {
-                throw new CacheFailure("store", e.Message, e);
+                throw new CacheFailure(FailOpenReason.Store, e.Message, e);
             }
             if (entry is null) continue;
             var verdict = _decision.Decide(asked, _decision.Read(entry.Question), similarity);
             if (verdict.Agree) return new LookupResult(LookupKind.HitSemantic, entry, similarity, vector);
 
-            ProxyMetrics.GuardRejections.WithLabels(lane.Name, verdict.Reason!).Inc();
-            _store.Count(lane.Name, Tally.Refused(verdict.Reason!));
-            _store.AppendEvent(new EventRow(DateTimeOffset.UtcNow, lane.Name, partition, "guard", question, entry.Question, similarity,
-                "refused", verdict.Reason));
+            var reason = verdict.Reason!.Value;
+            _tally.Refused(key.Lane, reason);
+            _store.AppendEvent(new EventRow(DateTimeOffset.UtcNow, key.Lane, key.PartitionHash, "guard", key.Question, entry.Question,
+                similarity, "refused", LabelValue.Of(reason)));
         }
         return new LookupResult(LookupKind.Miss, null, null, vector);
     }
 
-    /// <summary>Embeds texts in one batch, timing the model run.</summary>
-    /// <exception cref="CacheFailure">the embedder failed.</exception>
     public float[][] Embed(IReadOnlyList<string> texts)
     {
         try
@@ -156,16 +140,15 @@ public sealed class SemanticCache
         }
         catch (Exception e) when (e is not OutOfMemoryException)
         {
-            throw new CacheFailure("embedder", e.Message, e);
+            throw new CacheFailure(FailOpenReason.Embedder, e.Message, e);
         }
     }
 
-    public float[] Embed(string text) => Embed([text])[0];
-
-    /// <summary>Stores an accepted rewrite and indexes it once committed.</summary>
-    /// <exception cref="CacheFailure">the store failed.</exception>
-    public async Task<long> AddAsync(NewEntry entry, CancellationToken cancel)
+    public async Task StoreAsync(CacheKey key, float[] questionVector, AcceptedRewrite rewrite, CancellationToken cancel)
     {
+        // The vector came from this cache's embedder (Embed or Lookup), so the entry carries that model's id.
+        var entry = new NewEntry(key.ScopeKey, key.PartitionHash, key.Lane, key.Question, key.Normalized, questionVector, _embedder.ModelId,
+            rewrite.Content, rewrite.Scores, rewrite.ResponseModel, rewrite.PromptTokens, rewrite.CompletionTokens, DateTimeOffset.UtcNow);
         long id;
         try
         {
@@ -173,14 +156,21 @@ public sealed class SemanticCache
         }
         catch (StoreException e)
         {
-            throw new CacheFailure("store", e.Message, e);
+            throw new CacheFailure(FailOpenReason.Store, e.Message, e);
         }
-        if (entry.Vector is not null && entry.ModelId == _embedder.ModelId)
+        try
         {
             // A replaced entry keeps its id: drop the old vector first.
             _index.Remove(id);
-            _index.Add(entry.ScopeKey, id, entry.Vector);
+            _index.Add(key.ScopeKey, id, questionVector);
         }
-        return id;
+        catch (Exception e) when (e is not OutOfMemoryException)
+        {
+            throw new CacheFailure(FailOpenReason.Index, e.Message, e);
+        }
     }
+
+    public void RecordHit(StoredEntry entry) => _store.RecordHit(entry.Id, DateTimeOffset.UtcNow);
+
+    public void AppendEvent(EventRow row) => _store.AppendEvent(row);
 }

@@ -4,7 +4,6 @@ using System.Threading.Channels;
 using Dapper;
 using Microsoft.Data.Sqlite;
 using Microsoft.Extensions.Logging;
-using RewriteProxy.Hosting;
 
 namespace RewriteProxy.Cache;
 
@@ -156,13 +155,13 @@ public sealed class SqliteRewriteStore : IRewriteStore
         """;
 
     public StoredEntry? FindExact(string scopeKey, string normalized, DateTimeOffset minCreated) => Read(c =>
-        c.QuerySingleOrDefault<StoredEntry>(
+        c.QuerySingleOrDefault<SqliteEntryRow>(
             $"SELECT {EntryColumns} FROM entries WHERE scope_key = @scopeKey AND normalized = @normalized AND created >= @min",
-            new { scopeKey, normalized, min = minCreated.ToUnixTimeMilliseconds() }));
+            new { scopeKey, normalized, min = minCreated.ToUnixTimeMilliseconds() })?.Decode());
 
     public StoredEntry? Get(long id, DateTimeOffset minCreated) => Read(c =>
-        c.QuerySingleOrDefault<StoredEntry>($"SELECT {EntryColumns} FROM entries WHERE id = @id AND created >= @min",
-            new { id, min = minCreated.ToUnixTimeMilliseconds() }));
+        c.QuerySingleOrDefault<SqliteEntryRow>($"SELECT {EntryColumns} FROM entries WHERE id = @id AND created >= @min",
+            new { id, min = minCreated.ToUnixTimeMilliseconds() })?.Decode());
 
     public IEnumerable<IndexRow> ReadVectors(string modelId)
     {
@@ -182,12 +181,13 @@ public sealed class SqliteRewriteStore : IRewriteStore
     }
 
     public List<StoredEntry> List(string? lane, string? partitionHash, string? contains, int limit) => Read(c =>
-        c.Query<StoredEntry>($"""
+        c.Query<SqliteEntryRow>($"""
             SELECT {EntryColumns} FROM entries
             WHERE (@lane IS NULL OR lane = @lane) AND (@partitionHash IS NULL OR partition_hash = @partitionHash)
               AND (@contains IS NULL OR instr(normalized, @contains) > 0)
             ORDER BY last_hit DESC LIMIT @limit
-            """, new { lane, partitionHash, contains = contains is null ? null : QuestionText.Normalize(contains), limit }).AsList());
+            """, new { lane, partitionHash, contains = contains is null ? null : QuestionText.Normalize(contains), limit })
+            .Select(r => r.Decode()).ToList());
 
     public List<EventRow> Events(string? lane, DateTimeOffset since) => Read(c =>
         c.Query<(long At, string Lane, string PartitionHash, string Kind, string Question, string Candidate, double Score, string Verdict, string? Reason)>(

@@ -20,27 +20,44 @@ public sealed record NewEntry(
 /// <param name="MaxDrift">Largest drift among the accepted rewrites; null when nothing was scored.</param>
 /// <param name="Dropped">How many rewrites the guard dropped on the miss.</param>
 /// <param name="Drifts">Drift of each accepted line (siblings) or of the draft, in order.</param>
-public sealed record EntryScores(double? MaxDrift, int Dropped, double[] Drifts);
-
-/// <summary>One stored entry as read back (the vector stays in the index).</summary>
-public sealed record StoredEntry
+public sealed record EntryScores(double? MaxDrift, int Dropped, double[] Drifts)
 {
-    public long Id { get; init; }
-    public string ScopeKey { get; init; } = "";
-    public string PartitionHash { get; init; } = "";
-    public string Lane { get; init; } = "";
-    public string Question { get; init; } = "";
-    public string Normalized { get; init; } = "";
-    public string Content { get; init; } = "";
-    public string Scores { get; init; } = "{}";
-    public string? ResponseModel { get; init; }
-    public string? ModelId { get; init; }
-    public long PromptTokens { get; init; }
-    public long CompletionTokens { get; init; }
-    public long Created { get; init; }
-    public long LastHit { get; init; }
-    public long HitCount { get; init; }
+    /// <summary>What an entry whose scores cannot be read reports: nothing scored, nothing dropped.</summary>
+    public static EntryScores None { get; } = new(null, 0, []);
 }
+
+/// <summary>One stored entry as read back (the vector stays in the index), decoded once by the store.</summary>
+/// <param name="Id">The store's id of the entry; the vector index knows it by this id.</param>
+/// <param name="ScopeKey">The hashed scope: calls share the entry only when theirs is equal.</param>
+/// <param name="PartitionHash">The tenant's partition (a hash, never the credential).</param>
+/// <param name="Lane">The lane's name.</param>
+/// <param name="Question">The question as it was asked.</param>
+/// <param name="Normalized">Its normal form, the key of exact lookups.</param>
+/// <param name="Content">What the app was given: the accepted draft, or the kept siblings one per line.</param>
+/// <param name="Scores">The drift scores the miss reported, so a hit reports the same.</param>
+/// <param name="ResponseModel">The model the upstream named in its answer, repeated in hits.</param>
+/// <param name="ModelId">The embedding model that made the question's vector.</param>
+/// <param name="PromptTokens">Upstream prompt tokens of the miss: what a hit saves.</param>
+/// <param name="CompletionTokens">Upstream completion tokens of the miss: what a hit saves.</param>
+/// <param name="Created">When the entry was stored; it is served until <c>Store:Ttl</c> after this.</param>
+/// <param name="LastHit">When it was last served (its creation time until then); eviction takes the oldest first.</param>
+/// <param name="HitCount">How often it was served.</param>
+public sealed record StoredEntry(
+    long Id,
+    string ScopeKey,
+    string PartitionHash,
+    string Lane,
+    string Question,
+    string Normalized,
+    string Content,
+    EntryScores Scores,
+    string? ResponseModel,
+    string? ModelId,
+    long PromptTokens,
+    long CompletionTokens,
+    DateTimeOffset Created,
+    DateTimeOffset LastHit,
+    long HitCount);
 
 /// <summary>A row the vector index is rebuilt from.</summary>
 public sealed record IndexRow(long Id, string ScopeKey, float[] Vector);

@@ -16,11 +16,8 @@ namespace RewriteProxy.Cache;
 /// </remarks>
 public sealed class VectorIndex : IDisposable
 {
-    /// <summary>Dimensions of the default embedding model (all-MiniLM-L6-v2 gives 384).</summary>
-    public const int DefaultDimensions = 384;
-
     /// <summary>Entries per scope at which a graph is built. Chosen from the exact-vs-HNSW lookup and build
-    /// measurements in DEVELOPERS.md ("Vector index"): below it brute force is fast enough and needs no build.</summary>
+    /// measurements in docs/measurements/index.md: below it brute force is fast enough and needs no build.</summary>
     public const int DefaultSwitchSize = 10_000;
 
     private readonly ConcurrentDictionary<string, ScopeIndex> _scopes = new(StringComparer.Ordinal);
@@ -29,11 +26,11 @@ public sealed class VectorIndex : IDisposable
     private int _count;
     private bool _disposed;
 
+    /// <param name="dimensions">Length of every vector: the embedder's <c>Dimension</c>, whichever model is loaded.</param>
     /// <param name="switchSize">Entries at which a scope is given a graph; it drops the graph again below half
     /// of this, so a scope hovering at the boundary does not rebuild on every add/remove.</param>
-    /// <param name="dimensions">Length of every vector.</param>
     /// <param name="hnsw">Graph tuning; null for the measured defaults.</param>
-    public VectorIndex(int switchSize = DefaultSwitchSize, int dimensions = DefaultDimensions, HnswSettings? hnsw = null)
+    public VectorIndex(int dimensions, int switchSize = DefaultSwitchSize, HnswSettings? hnsw = null)
     {
         ArgumentOutOfRangeException.ThrowIfLessThan(switchSize, 2);
         ArgumentOutOfRangeException.ThrowIfLessThan(dimensions, 1);

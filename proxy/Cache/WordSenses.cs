@@ -13,9 +13,9 @@ internal sealed class WordSenses
 {
     public const string ResourceName = "RewriteProxy.Cache.senses.tsv.gz";
 
-    static readonly Lazy<WordSenses> s_default = new(LoadEmbedded, LazyThreadSafetyMode.ExecutionAndPublication);
+    static readonly Lazy<WordSenses> LoadedTable = new(LoadEmbedded, LazyThreadSafetyMode.ExecutionAndPublication);
 
-    public static WordSenses Default => s_default.Value;
+    public static WordSenses Default => LoadedTable.Value;
 
     /// <summary>
     /// How many of a word's senses count, per part of speech, most frequent first (WordNet's sense order). Rare senses

@@ -3,7 +3,6 @@ using Dapper;
 using Microsoft.Data.Sqlite;
 using Microsoft.Extensions.Logging.Abstractions;
 using RewriteProxy.Cache;
-using RewriteProxy.Hosting;
 
 namespace RewriteProxy.Cli;
 
@@ -57,7 +56,7 @@ public static class PurgeCommand
         TimeSpan? age = null;
         if (request.OlderThan is { } text)
         {
-            if (!OptionsReader.TryParseDuration(text, out var parsed) || parsed <= TimeSpan.Zero)
+            if (!DurationText.TryParse(text, out var parsed) || parsed <= TimeSpan.Zero)
             {
                 await stderr.WriteLineAsync($"rewriteproxy: purge: --older-than '{text}' is not a duration; use e.g. 7d, 12h or 30m");
                 return ExitCodes.BadConfiguration;

@@ -52,9 +52,6 @@ public static class ServeCommand
     }
 }
 
-/// <summary>A start-up failure that the operator can fix (bad model file, unopenable store): printed as one line.</summary>
-public sealed class StartupException(string message, Exception? inner = null) : Exception(message, inner);
-
 public static class ExitCodes
 {
     public const int Ok = 0;

@@ -6,7 +6,6 @@ using Microsoft.Extensions.Logging.Abstractions;
 using RewriteProxy.Admin;
 using RewriteProxy.Cache;
 using RewriteProxy.Cli.Reports;
-using RewriteProxy.Hosting;
 using Spectre.Console;
 
 namespace RewriteProxy.Cli;

@@ -3,7 +3,6 @@ using System.Diagnostics;
 using System.Globalization;
 using RewriteProxy.Cli.Reports;
 using RewriteProxy.Embedding;
-using RewriteProxy.Hosting;
 using Spectre.Console;
 
 namespace RewriteProxy.Cli;
@@ -60,7 +59,7 @@ public static class TuneCommand
             if (!Startup.TryLoad(parse, out var options, out _)) return ExitCodes.BadConfiguration;
             var sinceText = parse.GetValue(Since);
             var since = DefaultSince;
-            if (sinceText is not null && (!OptionsReader.TryParseDuration(sinceText, out since) || since <= TimeSpan.Zero))
+            if (sinceText is not null && (!DurationText.TryParse(sinceText, out since) || since <= TimeSpan.Zero))
             {
                 Console.Error.WriteLine($"rewriteproxy: tune: --since '{sinceText}' is not a duration; use e.g. 12h or 7d");
                 return ExitCodes.BadConfiguration;

@@ -6,34 +6,34 @@ namespace RewriteProxy.Embedding;
 /// </summary>
 public sealed class CachingEmbedder : IEmbedder, IDisposable
 {
-    readonly IEmbedder inner;
-    readonly int capacity;
-    readonly Dictionary<string, LinkedListNode<(string Text, float[] Vector)>> byText;
+    readonly IEmbedder _inner;
+    readonly int _capacity;
+    readonly Dictionary<string, LinkedListNode<(string Text, float[] Vector)>> _byText;
     // Most recently used first.
-    readonly LinkedList<(string Text, float[] Vector)> recency = new();
-    readonly Lock gate = new();
+    readonly LinkedList<(string Text, float[] Vector)> _recency = new();
+    readonly Lock _gate = new();
 
     public CachingEmbedder(IEmbedder inner, int capacity)
     {
         ArgumentNullException.ThrowIfNull(inner);
         ArgumentOutOfRangeException.ThrowIfLessThan(capacity, 1);
-        this.inner = inner;
-        this.capacity = capacity;
-        byText = new Dictionary<string, LinkedListNode<(string, float[])>>(capacity, StringComparer.Ordinal);
+        _inner = inner;
+        _capacity = capacity;
+        _byText = new Dictionary<string, LinkedListNode<(string, float[])>>(capacity, StringComparer.Ordinal);
     }
 
     /// <summary><paramref name="inner"/> behind a cache of <paramref name="cacheSize"/> texts, or <paramref name="inner"/> itself when it is 0.</summary>
     public static IEmbedder Over(IEmbedder inner, int cacheSize) =>
         cacheSize > 0 ? new CachingEmbedder(inner, cacheSize) : inner;
 
-    public string ModelId => inner.ModelId;
+    public string ModelId => _inner.ModelId;
 
-    public int Dimension => inner.Dimension;
+    public int Dimension => _inner.Dimension;
 
     /// <summary>Texts whose vectors are held now.</summary>
     public int Count
     {
-        get { lock (gate) return byText.Count; }
+        get { lock (_gate) return _byText.Count; }
     }
 
     public float[] Embed(string text)
@@ -41,7 +41,7 @@ public sealed class CachingEmbedder : IEmbedder, IDisposable
         text ??= "";
         if (TryGet(text) is { } cached)
             return cached;
-        float[] vector = inner.Embed(text);
+        float[] vector = _inner.Embed(text);
         Put(text, vector);
         return (float[])vector.Clone();
     }
@@ -66,7 +66,7 @@ public sealed class CachingEmbedder : IEmbedder, IDisposable
         if (missing is null)
             return vectors;
 
-        float[][] fresh = inner.Embed(missing);
+        float[][] fresh = _inner.Embed(missing);
         for (int m = 0; m < fresh.Length; m++)
         {
             Put(missing[m], fresh[m]);
@@ -78,35 +78,35 @@ public sealed class CachingEmbedder : IEmbedder, IDisposable
     /// <summary>A copy, so that a caller who writes into its vector does not change the cached one.</summary>
     float[]? TryGet(string text)
     {
-        lock (gate)
+        lock (_gate)
         {
-            if (!byText.TryGetValue(text, out var node))
+            if (!_byText.TryGetValue(text, out var node))
                 return null;
-            recency.Remove(node);
-            recency.AddFirst(node);
+            _recency.Remove(node);
+            _recency.AddFirst(node);
             return (float[])node.Value.Vector.Clone();
         }
     }
 
     void Put(string text, float[] vector)
     {
-        lock (gate)
+        lock (_gate)
         {
-            if (byText.TryGetValue(text, out var existing))
+            if (_byText.TryGetValue(text, out var existing))
             {
-                recency.Remove(existing);
-                recency.AddFirst(existing);
+                _recency.Remove(existing);
+                _recency.AddFirst(existing);
                 return;
             }
-            if (byText.Count >= capacity)
+            if (_byText.Count >= _capacity)
             {
-                LinkedListNode<(string Text, float[] Vector)> oldest = recency.Last!;
-                recency.RemoveLast();
-                byText.Remove(oldest.Value.Text);
+                LinkedListNode<(string Text, float[] Vector)> oldest = _recency.Last!;
+                _recency.RemoveLast();
+                _byText.Remove(oldest.Value.Text);
             }
-            byText[text] = recency.AddFirst((text, vector));
+            _byText[text] = _recency.AddFirst((text, vector));
         }
     }
 
-    public void Dispose() => (inner as IDisposable)?.Dispose();
+    public void Dispose() => (_inner as IDisposable)?.Dispose();
 }

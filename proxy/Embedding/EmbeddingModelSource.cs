@@ -1,6 +1,5 @@
 using System.Security.Cryptography;
 using System.Text;
-using RewriteProxy.Hosting;
 
 namespace RewriteProxy.Embedding;
 
@@ -66,6 +65,8 @@ internal sealed record EmbeddingModelSource(string ModelName, byte[] Model, stri
             ?? throw new EmbedderLoadException($"Embedded resource '{name}' is missing from {assembly.GetName().Name}.");
         var bytes = new byte[stream.Length];
         stream.ReadExactly(bytes);
+        if (stream is UnmanagedMemoryStream mapped)
+            MappedPages.Release(mapped, bytes.Length);
         return bytes;
     }
 }

@@ -2,9 +2,9 @@ using System.Buffers;
 using System.Collections.Concurrent;
 using System.Diagnostics;
 using System.Numerics.Tensors;
+using System.Runtime;
 using Microsoft.Extensions.Logging;
 using Microsoft.ML.OnnxRuntime;
-using RewriteProxy.Hosting;
 using RewriteProxy.Telemetry;
 using SessionOptions = Microsoft.ML.OnnxRuntime.SessionOptions;
 
@@ -19,36 +19,36 @@ public sealed class OnnxEmbedder : IEmbedder, IDisposable
     /// <summary>Pooling of token states into one vector; part of <see cref="ModelId"/>.</summary>
     internal const string PoolingName = "mean";
 
-    const string InputIds = "input_ids";
-    const string AttentionMask = "attention_mask";
-    const string TokenTypeIds = "token_type_ids";
-    const string HiddenState = "last_hidden_state";
+    internal const string InputIds = "input_ids";
+    internal const string AttentionMask = "attention_mask";
+    internal const string TokenTypeIds = "token_type_ids";
+    internal const string HiddenState = "last_hidden_state";
 
     /// <summary>Guards the division of a vector by its length; the value sentence-transformers' normalize uses (from memory).</summary>
     const float NormFloor = 1e-12f;
 
-    readonly WordPieceEncoder encoder;
-    readonly SessionOptions sessionOptions;
-    readonly InferenceSession[] sessions;
-    readonly ConcurrentBag<InferenceSession> idle;
-    readonly SemaphoreSlim? turns;
-    readonly RunOptions runOptions = new();
-    readonly string[] inputNames;
-    readonly string[] outputNames;
-    readonly bool feedsTokenTypes;
+    readonly WordPieceEncoder _encoder;
+    readonly SessionOptions _sessionOptions;
+    readonly InferenceSession[] _sessions;
+    readonly ConcurrentBag<InferenceSession> _idle;
+    readonly SemaphoreSlim? _turns;
+    readonly RunOptions _runOptions = new();
+    readonly string[] _inputNames;
+    readonly string[] _outputNames;
+    readonly bool _feedsTokenTypes;
 
     OnnxEmbedder(WordPieceEncoder encoder, SessionOptions sessionOptions, InferenceSession[] sessions, string modelId,
         string[] inputNames, string outputName)
     {
-        this.encoder = encoder;
-        this.sessionOptions = sessionOptions;
-        this.sessions = sessions;
-        idle = new ConcurrentBag<InferenceSession>(sessions);
-        turns = sessions.Length > 1 ? new SemaphoreSlim(sessions.Length, sessions.Length) : null;
+        _encoder = encoder;
+        _sessionOptions = sessionOptions;
+        _sessions = sessions;
+        _idle = new ConcurrentBag<InferenceSession>(sessions);
+        _turns = sessions.Length > 1 ? new SemaphoreSlim(sessions.Length, sessions.Length) : null;
         ModelId = modelId;
-        this.inputNames = inputNames;
-        outputNames = [outputName];
-        feedsTokenTypes = inputNames.Contains(TokenTypeIds);
+        _inputNames = inputNames;
+        _outputNames = [outputName];
+        _feedsTokenTypes = inputNames.Contains(TokenTypeIds);
     }
 
     public string ModelId { get; }
@@ -56,7 +56,7 @@ public sealed class OnnxEmbedder : IEmbedder, IDisposable
     public int Dimension { get; private set; }
 
     /// <summary>Word pieces per text, [CLS] and [SEP] included.</summary>
-    public int MaxTokens => encoder.MaxTokens;
+    public int MaxTokens => _encoder.MaxTokens;
 
     /// <summary>
     /// Loads the model named by <paramref name="options"/> (or the packaged all-MiniLM-L6-v2), checks that it fits,
@@ -67,11 +67,21 @@ public sealed class OnnxEmbedder : IEmbedder, IDisposable
         Load(options, DefaultSessions, logger);
 
     /// <summary>
-    /// Sessions kept by <see cref="Load(EmbeddingOptions, ILogger?)"/>, the threads split between them. Measured on 2 cores
-    /// with 4 concurrent callers (DEVELOPERS.md ("Embedding engine")): two sessions of one thread served a question in 10.9 ms, one
-    /// shared session of two threads in 16.2 ms. Costs one more copy of the model's weights in memory.
+    /// Sessions kept by <see cref="Load(EmbeddingOptions, ILogger?)"/>, the threads split between them: one session with
+    /// every thread. It holds the model's weights once (two sessions held them twice: ~90 MB more resident memory), and
+    /// a lone question, the common case for a semantic hit, runs on every core instead of on half of them. Callers
+    /// share it concurrently (InferenceSession.Run is thread-safe). Measured against two one-thread sessions on 2 cores
+    /// (docs/measurements/performance.md): no slower alone or with 2 or 4 concurrent callers once its threads do
+    /// not spin (<see cref="AllowSpinning"/>); with spinning it was about twice as slow under load.
     /// </summary>
-    internal const int DefaultSessions = 2;
+    internal const int DefaultSessions = 1;
+
+    /// <summary>
+    /// Whether ORT's intra-op threads spin-wait for work instead of sleeping. Off: on a 2-core proxy a spinning thread
+    /// takes the core that request handling (or a concurrent question) needs. Measured on 2 cores under load, one
+    /// 2-thread session: 15–18 ms of CPU per question with spinning, 7–10 ms without (docs/measurements).
+    /// </summary>
+    internal const bool AllowSpinning = false;
 
     /// <summary>As <see cref="Load(EmbeddingOptions, ILogger?)"/> with <paramref name="sessionCount"/> sessions: 1 = one session
     /// shared by every caller; more = a pool, each session with its share of the threads.</summary>
@@ -82,6 +92,22 @@ public sealed class OnnxEmbedder : IEmbedder, IDisposable
         // More sessions than threads would leave a session without a thread of its own.
         sessionCount = Math.Min(sessionCount, threads);
         long started = Stopwatch.GetTimestamp();
+        OnnxEmbedder embedder = Create(options, sessionCount, threads);
+        ReleaseModelCopy();
+        logger?.LogInformation(
+            "Embedding model {Model} loaded in {Milliseconds} ms: id {ModelId}, {Dimension} dimensions, {Sessions} session(s) x {Threads} thread(s), {MaxTokens} word pieces",
+            embedder._modelName, (long)Stopwatch.GetElapsedTime(started).TotalMilliseconds, embedder.ModelId,
+            embedder.Dimension, sessionCount, embedder._sessionOptions.IntraOpNumThreads, embedder.MaxTokens);
+        return embedder;
+    }
+
+    /// <summary>
+    /// Reads the model and builds the sessions. A method of its own so that the model's bytes (a 90 MB managed array)
+    /// are referenced from no frame once it returns: ONNX Runtime keeps its own copy, and <see cref="ReleaseModelCopy"/>
+    /// can then give the array's memory back.
+    /// </summary>
+    static OnnxEmbedder Create(EmbeddingOptions options, int sessionCount, int threads)
+    {
         EmbeddingModelSource source = EmbeddingModelSource.Resolve(options);
         WordPieceEncoder encoder = WordPieceEncoder.Load(new MemoryStream(source.Vocabulary, writable: false), source.VocabularyName, options.MaxTokens);
 
@@ -92,18 +118,20 @@ public sealed class OnnxEmbedder : IEmbedder, IDisposable
             IntraOpNumThreads = Math.Max(1, threads / sessionCount),
             InterOpNumThreads = 1,
         };
+        // Between runs, ORT's intra-op threads spin-wait for the next parallel section by default. Those spins take a core
+        // from request handling on a proxy that embeds now and then; a run's own sections still follow each other closely.
+        sessionOptions.AddSessionConfigEntry("session.intra_op.allow_spinning", AllowSpinning ? "1" : "0");
         var sessions = new InferenceSession[sessionCount];
         try
         {
             for (int i = 0; i < sessionCount; i++)
                 sessions[i] = CreateSession(source, sessionOptions);
-            (string[] inputs, string output) = CheckShape(sessions[0], source.ModelName);
-            var embedder = new OnnxEmbedder(encoder, sessionOptions, sessions, source.ModelId(PoolingName), inputs, output);
+            (string[] inputs, string output) = BertModelShape.Check(sessions[0], source.ModelName);
+            var embedder = new OnnxEmbedder(encoder, sessionOptions, sessions, source.ModelId(PoolingName), inputs, output)
+            {
+                _modelName = source.ModelName,
+            };
             embedder.Dimension = embedder.ProbeDimension(source.ModelName);
-            logger?.LogInformation(
-                "Embedding model {Model} loaded in {Milliseconds} ms: id {ModelId}, {Dimension} dimensions, {Sessions} session(s) x {Threads} thread(s), {MaxTokens} word pieces",
-                source.ModelName, (long)Stopwatch.GetElapsedTime(started).TotalMilliseconds, embedder.ModelId,
-                embedder.Dimension, sessionCount, sessionOptions.IntraOpNumThreads, encoder.MaxTokens);
             return embedder;
         }
         catch
@@ -115,6 +143,20 @@ public sealed class OnnxEmbedder : IEmbedder, IDisposable
         }
     }
 
+    /// <summary>
+    /// One full, compacting collection right after loading. The model's bytes were read into a managed array (the
+    /// ONNX Runtime API takes a byte[]) that is garbage once the sessions exist, but a 90 MB array on the large object
+    /// heap is only reclaimed by a full collection, which an idle or lightly loaded proxy may not run for hours.
+    /// Measured: ~85 MB of VmRSS given back (docs/measurements). Once per load, at start, before any request.
+    /// </summary>
+    static void ReleaseModelCopy()
+    {
+        GCSettings.LargeObjectHeapCompactionMode = GCLargeObjectHeapCompactionMode.CompactOnce;
+        GC.Collect(GC.MaxGeneration, GCCollectionMode.Aggressive, blocking: true, compacting: true);
+    }
+
+    string _modelName = "";
+
     public float[] Embed(string text) => Embed([text])[0];
 
     public float[][] Embed(IReadOnlyList<string> texts)
@@ -125,7 +167,7 @@ public sealed class OnnxEmbedder : IEmbedder, IDisposable
         int rows = 0, longest = 0;
         for (int i = 0; i < texts.Count; i++)
         {
-            pieces[i] = encoder.Encode(texts[i] ?? "");
+            pieces[i] = _encoder.Encode(texts[i] ?? "");
             if (pieces[i] is { } ids)
             {
                 rows++;
@@ -147,10 +189,10 @@ public sealed class OnnxEmbedder : IEmbedder, IDisposable
         int cells = rows * longest;
         long[] ids = ArrayPool<long>.Shared.Rent(cells);
         long[] mask = ArrayPool<long>.Shared.Rent(cells);
-        long[]? types = feedsTokenTypes ? ArrayPool<long>.Shared.Rent(cells) : null;
+        long[]? types = _feedsTokenTypes ? ArrayPool<long>.Shared.Rent(cells) : null;
         try
         {
-            long padding = encoder.PaddingId;
+            long padding = _encoder.PaddingId;
             int row = 0;
             foreach (IReadOnlyList<int>? textPieces in pieces)
             {
@@ -169,10 +211,10 @@ public sealed class OnnxEmbedder : IEmbedder, IDisposable
             types?.AsSpan(0, cells).Clear();
 
             long[] shape = [rows, longest];
-            using var inputs = new InputValues(inputNames.Length);
-            for (int i = 0; i < inputNames.Length; i++)
+            using var inputs = new InputValues(_inputNames.Length);
+            for (int i = 0; i < _inputNames.Length; i++)
             {
-                long[] data = inputNames[i] switch { InputIds => ids, AttentionMask => mask, _ => types! };
+                long[] data = _inputNames[i] switch { InputIds => ids, AttentionMask => mask, _ => types! };
                 inputs.Values[i] = OrtValue.CreateTensorValueFromMemory(OrtMemoryInfo.DefaultInstance, data.AsMemory(0, cells), shape);
             }
 
@@ -180,7 +222,7 @@ public sealed class OnnxEmbedder : IEmbedder, IDisposable
             try
             {
                 long started = Stopwatch.GetTimestamp();
-                using IDisposableReadOnlyCollection<OrtValue> outputs = session.Run(runOptions, inputNames, inputs.Values, outputNames);
+                using IDisposableReadOnlyCollection<OrtValue> outputs = session.Run(_runOptions, _inputNames, inputs.Values, _outputNames);
                 ProxyMetrics.EmbedDuration.Observe(Stopwatch.GetElapsedTime(started).TotalSeconds);
                 Pool(outputs[0], pieces, longest, vectors);
             }
@@ -222,19 +264,19 @@ public sealed class OnnxEmbedder : IEmbedder, IDisposable
 
     InferenceSession TakeSession()
     {
-        if (turns is null)
-            return sessions[0];
-        turns.Wait();
-        idle.TryTake(out InferenceSession? session);
+        if (_turns is null)
+            return _sessions[0];
+        _turns.Wait();
+        _idle.TryTake(out InferenceSession? session);
         return session!;
     }
 
     void ReturnSession(InferenceSession session)
     {
-        if (turns is null)
+        if (_turns is null)
             return;
-        idle.Add(session);
-        turns.Release();
+        _idle.Add(session);
+        _turns.Release();
     }
 
     static InferenceSession CreateSession(EmbeddingModelSource source, SessionOptions options)
@@ -249,42 +291,14 @@ public sealed class OnnxEmbedder : IEmbedder, IDisposable
         }
     }
 
-    /// <summary>The inputs to feed (in the model's order) and the output to pool, or why the model does not fit.</summary>
-    static (string[] Inputs, string Output) CheckShape(InferenceSession session, string modelName)
-    {
-        IReadOnlyDictionary<string, NodeMetadata> inputs = session.InputMetadata;
-        foreach (string required in (string[])[InputIds, AttentionMask])
-        {
-            if (!inputs.ContainsKey(required))
-                throw new EmbedderLoadException($"Embedding model '{modelName}' has no input '{required}' (it has {string.Join(", ", inputs.Keys)}); a BERT-family model is expected.");
-        }
-        foreach ((string name, NodeMetadata meta) in inputs)
-        {
-            if (name is not (InputIds or AttentionMask or TokenTypeIds))
-                throw new EmbedderLoadException($"Embedding model '{modelName}' needs input '{name}', which a BERT-family model does not have (expected {InputIds}, {AttentionMask}[, {TokenTypeIds}]).");
-            if (meta.ElementDataType != Microsoft.ML.OnnxRuntime.Tensors.TensorElementType.Int64 || meta.Dimensions.Length != 2)
-                throw new EmbedderLoadException($"Embedding model '{modelName}' input '{name}' is {meta.ElementDataType} of rank {meta.Dimensions.Length}; expected Int64 of rank 2 (batch, tokens).");
-        }
-
-        IReadOnlyDictionary<string, NodeMetadata> outputs = session.OutputMetadata;
-        if (outputs.Count == 0)
-            throw new EmbedderLoadException($"Embedding model '{modelName}' has no output.");
-        string output = outputs.ContainsKey(HiddenState) ? HiddenState : outputs.Keys.First();
-        NodeMetadata outputMeta = outputs[output];
-        if (outputMeta.ElementDataType != Microsoft.ML.OnnxRuntime.Tensors.TensorElementType.Float || outputMeta.Dimensions.Length != 3)
-            throw new EmbedderLoadException($"Embedding model '{modelName}' output '{output}' is {outputMeta.ElementDataType} of rank {outputMeta.Dimensions.Length}; expected Float of rank 3 (batch, tokens, hidden).");
-
-        return (inputs.Keys.ToArray(), output);
-    }
-
     /// <summary>Runs the model once (warming it up) and returns the length of its vectors.</summary>
     int ProbeDimension(string modelName)
     {
         float[] probe;
         try
         {
-            const string ProbeText = "dimension probe";
-            IReadOnlyList<int> pieces = encoder.Encode(ProbeText)!;
+            const string probeText = "dimension probe";
+            IReadOnlyList<int> pieces = _encoder.Encode(probeText)!;
             var vectors = new float[1][];
             Run([pieces], rows: 1, longest: pieces.Count, vectors);
             probe = vectors[0];
@@ -300,11 +314,11 @@ public sealed class OnnxEmbedder : IEmbedder, IDisposable
 
     public void Dispose()
     {
-        foreach (InferenceSession session in sessions)
+        foreach (InferenceSession session in _sessions)
             session.Dispose();
-        sessionOptions.Dispose();
-        runOptions.Dispose();
-        turns?.Dispose();
+        _sessionOptions.Dispose();
+        _runOptions.Dispose();
+        _turns?.Dispose();
     }
 
     /// <summary>The OrtValues of one run, disposed together.</summary>

@@ -5,26 +5,26 @@ namespace RewriteProxy.Embedding;
 /// <summary>Text to the word-piece ids a BERT-family model reads: [CLS], pieces, [SEP], truncated to a limit.</summary>
 internal sealed class WordPieceEncoder
 {
-    readonly BertTokenizer tokenizer;
+    readonly BertTokenizer _tokenizer;
 
     WordPieceEncoder(BertTokenizer tokenizer, int maxTokens)
     {
-        this.tokenizer = tokenizer;
+        _tokenizer = tokenizer;
         MaxTokens = maxTokens;
     }
 
     /// <summary>Word pieces per text, [CLS] and [SEP] included.</summary>
     public int MaxTokens { get; }
 
-    public int PaddingId => tokenizer.PaddingTokenId;
+    public int PaddingId => _tokenizer.PaddingTokenId;
 
     /// <summary>Reads a WordPiece vocabulary (one piece a line). Throws <see cref="EmbedderLoadException"/> if it is not one.</summary>
     public static WordPieceEncoder Load(Stream vocabulary, string vocabularyName, int maxTokens)
     {
         // [CLS] and [SEP] take two of the places.
-        const int SpecialTokens = 2;
-        if (maxTokens <= SpecialTokens)
-            throw new EmbedderLoadException($"Embedding:MaxTokens is {maxTokens}; it must be more than {SpecialTokens} ([CLS] and [SEP] are counted).");
+        const int specialTokens = 2;
+        if (maxTokens <= specialTokens)
+            throw new EmbedderLoadException($"Embedding:MaxTokens is {maxTokens}; it must be more than {specialTokens} ([CLS] and [SEP] are counted).");
         BertTokenizer tokenizer;
         try
         {
@@ -52,14 +52,14 @@ internal sealed class WordPieceEncoder
         string normalized = BertTextNormalizer.Normalize(text);
         if (string.IsNullOrWhiteSpace(normalized))
             return null;
-        return tokenizer.EncodeToIds(normalized, MaxTokens, addSpecialTokens: true, out _, out _);
+        return _tokenizer.EncodeToIds(normalized, MaxTokens, addSpecialTokens: true, out _, out _);
     }
 
     /// <summary>The normalized text and how many of its characters fit in <see cref="MaxTokens"/> (for tests).</summary>
     internal (string Normalized, int CharsConsumed) Truncation(string text)
     {
         string normalized = BertTextNormalizer.Normalize(text);
-        tokenizer.EncodeToIds(normalized, MaxTokens, addSpecialTokens: true, out _, out int consumed);
+        _tokenizer.EncodeToIds(normalized, MaxTokens, addSpecialTokens: true, out _, out int consumed);
         return (normalized, consumed);
     }
 

@@ -1,6 +1,5 @@
 using Microsoft.AspNetCore.Http;
 using Microsoft.Extensions.Logging;
-using RewriteProxy.Hosting;
 using RewriteProxy.Wire;
 using Yarp.ReverseProxy.Forwarder;
 

@@ -1,6 +1,5 @@
 using System.Diagnostics;
 using System.Net;
-using RewriteProxy.Hosting;
 
 namespace RewriteProxy.Forwarding;
 

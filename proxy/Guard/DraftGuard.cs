@@ -1,4 +1,3 @@
-using RewriteProxy.Hosting;
 
 namespace RewriteProxy.Guard;
 
@@ -18,18 +17,18 @@ public enum DraftDecision
 /// <summary>Judges a draft (a hypothetical answer) by its drift from the question, and decides what follows.</summary>
 public static class DraftGuard
 {
-    /// <summary>Drift of the whole draft; accepted when drift ≤ <see cref="LaneOptions.MaxDrift"/>, else reason <c>drift</c>.</summary>
+    /// <summary>Drift of the whole draft; accepted when drift ≤ <see cref="IDriftLimits.MaxDrift"/>, else reason <c>drift</c>.</summary>
     /// <param name="question">L2-normalised question vector.</param>
     /// <param name="draft">L2-normalised vector of the whole draft.</param>
     /// <param name="draftText">The draft as it would be returned.</param>
     /// <param name="lane">The draft lane.</param>
     /// <remarks>In observe mode the verdict is still the would-be one; <see cref="Decide"/> accepts regardless.</remarks>
-    public static JudgedRewrite Judge(float[] question, float[] draft, string draftText, LaneOptions lane)
+    public static JudgedRewrite Judge(float[] question, float[] draft, string draftText, IDriftLimits lane)
     {
         var drift = 1 - SiblingGuard.Cosine(question, draft);
         return drift <= lane.MaxDrift
             ? new JudgedRewrite(draftText, drift, true, null)
-            : new JudgedRewrite(draftText, drift, false, "drift");
+            : new JudgedRewrite(draftText, drift, false, DropReason.Drift);
     }
 
     /// <summary>What to do with a judged draft.</summary>
@@ -38,12 +37,12 @@ public static class DraftGuard
     /// <paramref name="verdict"/> included (1 after the first call).</param>
     /// <param name="lane">The draft lane.</param>
     /// <returns>
-    /// <see cref="DraftDecision.Accept"/> when accepted or in observe mode. Otherwise by <see cref="LaneOptions.OnDrift"/>:
-    /// <c>retry</c> gives Retry while attempt ≤ <see cref="LaneOptions.Retries"/> (so Retries = 1 means one
+    /// <see cref="DraftDecision.Accept"/> when accepted or in observe mode. Otherwise by <see cref="IDriftLimits.OnDrift"/>:
+    /// <c>retry</c> gives Retry while attempt ≤ <see cref="IDriftLimits.Retries"/> (so Retries = 1 means one
     /// call after the first), then Fallback, because a question still answers retrieval when its draft
     /// cannot; <c>fallback</c> gives Fallback; <c>reject</c> gives Reject.
     /// </returns>
-    public static DraftDecision Decide(JudgedRewrite verdict, int attempt, LaneOptions lane)
+    public static DraftDecision Decide(JudgedRewrite verdict, int attempt, IDriftLimits lane)
     {
         ArgumentOutOfRangeException.ThrowIfLessThan(attempt, 1);
         if (verdict.Accepted || lane.Mode == GuardMode.Observe) return DraftDecision.Accept;

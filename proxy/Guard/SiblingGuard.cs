@@ -1,5 +1,4 @@
 using System.Numerics.Tensors;
-using RewriteProxy.Hosting;
 
 namespace RewriteProxy.Guard;
 
@@ -23,12 +22,12 @@ public sealed record SiblingJudgement(
 
 /// <summary>
 /// Judges the siblings of one question: drops those that drift from it, echo it, or duplicate each other,
-/// and keeps at most <see cref="LaneOptions.MaxSiblings"/>, chosen by Maximal Marginal Relevance.
+/// and keeps at most <see cref="IDriftLimits.MaxSiblings"/>, chosen by Maximal Marginal Relevance.
 /// </summary>
 /// <remarks>
 /// drift = 1 − cos(question, sibling); spread = 1 − cos(sibling, sibling). A candidate is dropped as
-/// <c>drift</c> when drift &gt; <see cref="LaneOptions.MaxDrift"/>, as <c>echo</c> when drift &lt;
-/// <see cref="LaneOptions.MinSpread"/> (it repeats the question, so it adds nothing to retrieval). The rest are
+/// <c>drift</c> when drift &gt; <see cref="IDriftLimits.MaxDrift"/>, as <c>echo</c> when drift &lt;
+/// <see cref="IDriftLimits.MinSpread"/> (it repeats the question, so it adds nothing to retrieval). The rest are
 /// picked one at a time by MMR (Carbonell &amp; Goldstein 1998):
 /// score(c) = λ·cos(q, c) − (1 − λ)·max over kept k of cos(c, k), the second term 0 while nothing is kept; ties go
 /// to the earlier line. Only candidates within <see cref="RelevanceFloor"/> compete this way; the others follow them,
@@ -40,7 +39,7 @@ public static class SiblingGuard
     /// <summary>
     /// λ of MMR = 0.7, leaning to relevance. Drift filtering leaves off-topic survivors that are, by nature, the
     /// most novel candidates, so weighing novelty lifts them past the MaxSiblings cut. Measured on the labelled
-    /// list with MaxSiblings 3 (DEVELOPERS.md ("Drift guard and defaults")): off-topic siblings kept in 45 slots were 6 at λ 0.3, 3 at 0.5,
+    /// list with MaxSiblings 3 (docs/measurements/drift-defaults.md): off-topic siblings kept in 45 slots were 6 at λ 0.3, 3 at 0.5,
     /// 2 at 0.7–0.9 and 1 at 1.0, while mean spread between kept siblings was 0.580, 0.549, 0.511, 0.505 and
     /// 0.492. 0.7 is the most diverse λ at the 2-off-topic level. Carbonell &amp; Goldstein used λ values of 0.3
     /// and 0.7 in their experiments (from memory).
@@ -68,7 +67,7 @@ public static class SiblingGuard
         IReadOnlyList<string> candidates,
         IReadOnlyList<float[]> vectors,
         string completion,
-        LaneOptions lane) => Judge(question, candidates, vectors, completion, lane, Relevance, RelevanceFloor);
+        IDriftLimits lane) => Judge(question, candidates, vectors, completion, lane, Relevance, RelevanceFloor);
 
     /// <summary>
     /// As the public overload, with λ and the relevance floor given (a floor at or above MaxDrift turns it off): for the
@@ -79,7 +78,7 @@ public static class SiblingGuard
         IReadOnlyList<string> candidates,
         IReadOnlyList<float[]> vectors,
         string completion,
-        LaneOptions lane,
+        IDriftLimits lane,
         double relevance,
         double floor)
     {
@@ -92,8 +91,8 @@ public static class SiblingGuard
         for (var i = 0; i < candidates.Count; i++)
         {
             drift[i] = 1 - Cosine(question, vectors[i]);
-            if (drift[i] > lane.MaxDrift) dropped.Add(new(candidates[i], drift[i], false, "drift"));
-            else if (drift[i] < lane.MinSpread) dropped.Add(new(candidates[i], drift[i], false, "echo"));
+            if (drift[i] > lane.MaxDrift) dropped.Add(new(candidates[i], drift[i], false, DropReason.Drift));
+            else if (drift[i] < lane.MinSpread) dropped.Add(new(candidates[i], drift[i], false, DropReason.Echo));
             else pool.Add(i);
         }
 
@@ -118,9 +117,9 @@ public static class SiblingGuard
             pool.Remove(best);
 
             if (kept.Count > 0 && 1 - nearestKept[best] < lane.MinSpread)
-                dropped.Add(new(candidates[best], drift[best], false, "duplicate"));
+                dropped.Add(new(candidates[best], drift[best], false, DropReason.Duplicate));
             else if (kept.Count >= lane.MaxSiblings)
-                dropped.Add(new(candidates[best], drift[best], false, "surplus"));
+                dropped.Add(new(candidates[best], drift[best], false, DropReason.Surplus));
             else
             {
                 kept.Add(best);

@@ -1,6 +1,5 @@
 using System.Text;
 using System.Text.RegularExpressions;
-using RewriteProxy.Hosting;
 
 namespace RewriteProxy.Guard;
 
@@ -25,7 +24,7 @@ namespace RewriteProxy.Guard;
 /// if you need more.").</para>
 /// <para><see cref="CandidateRule.Lines"/>: every other cleaned line, statements included.</para>
 /// <para>A closing line that is itself a question ("Would you like more?") is a candidate; such closers
-/// drifted at least 0.74 from the labelled questions (DEVELOPERS.md ("Drift guard and defaults")), so the guard drops them for drift. Exact repeats are kept: the guard drops them as duplicates, so they are counted.</para>
+/// drifted at least 0.74 from the labelled questions (docs/measurements/drift-defaults.md), so the guard drops them for drift. Exact repeats are kept: the guard drops them as duplicates, so they are counted.</para>
 /// </remarks>
 public static class SiblingParser
 {

@@ -1,42 +1,45 @@
 using System.Globalization;
 using System.Text.RegularExpressions;
 using Microsoft.Extensions.Configuration;
+using RewriteProxy.Admin;
+using RewriteProxy.Cache;
+using RewriteProxy.Embedding;
+using RewriteProxy.Forwarding;
+using RewriteProxy.Guard;
+using RewriteProxy.Lanes;
+using RewriteProxy.Telemetry;
 
 namespace RewriteProxy.Hosting;
 
 /// <summary>
 /// Reads and validates every setting in one pass and reports every bad one, each as a line that names the key,
 /// the value and what is allowed. Parsing by hand (instead of the binder) is what makes those lines possible.
+/// An absent key takes the default of its options record: the defaults are written there, once.
 /// </summary>
 public static class OptionsReader
 {
-    /// <summary>Default MaxDrift of each lane kind; see README "Choosing thresholds" for the measurements.</summary>
-    public const double DefaultSiblingMaxDrift = Guard.DriftDefaults.SiblingMaxDrift;
-    public const double DefaultDraftMaxDrift = Guard.DriftDefaults.DraftMaxDrift;
-    public const double DefaultHitSimilarity = 0.85;
-
     public static (RewriteProxyOptions? Options, IReadOnlyList<string> Errors) Read(IConfiguration config)
     {
         var r = new Reader(config);
         var baseUrl = r.AbsoluteUri("Upstream:BaseUrl");
-        var upstream = baseUrl is null ? null : new UpstreamOptions
-        {
-            BaseUrl = baseUrl,
-            Timeout = r.Duration("Upstream:Timeout", TimeSpan.FromSeconds(100), positive: true),
-        };
+        var timeout = r.Duration("Upstream:Timeout", UpstreamOptions.DefaultTimeout, positive: true);
+        var upstream = baseUrl is null ? null : new UpstreamOptions { BaseUrl = baseUrl, Timeout = timeout };
+
+        StoreOptions storeDefaults = new();
         var store = new StoreOptions
         {
-            Path = r.String("Store:Path") ?? "data/rewriteproxy.db",
-            MaxEntries = r.Long("Store:MaxEntries", 100_000, min: 1),
-            Ttl = r.Duration("Store:Ttl", TimeSpan.FromDays(7), positive: true),
+            Path = r.String("Store:Path") ?? storeDefaults.Path,
+            MaxEntries = r.Long("Store:MaxEntries", storeDefaults.MaxEntries, min: 1),
+            Ttl = r.Duration("Store:Ttl", storeDefaults.Ttl, positive: true),
         };
+        EmbeddingOptions embeddingDefaults = new();
         var embedding = new EmbeddingOptions
         {
             ModelPath = r.String("Embedding:ModelPath"),
             VocabPath = r.String("Embedding:VocabPath"),
-            Threads = (int)r.Long("Embedding:Threads", 0, min: 0, max: 256),
-            MaxTokens = (int)r.Long("Embedding:MaxTokens", 256, min: 8, max: 8192),
-            CacheSize = (int)r.Long("Embedding:CacheSize", 4096, min: 0, max: 10_000_000),
+            Threads = (int)r.Long("Embedding:Threads", embeddingDefaults.Threads, min: 0, max: 256),
+            MaxTokens = (int)r.Long("Embedding:MaxTokens", embeddingDefaults.MaxTokens, min: 8, max: 8192),
+            CacheSize = (int)r.Long("Embedding:CacheSize", embeddingDefaults.CacheSize, min: 0, max: 10_000_000),
         };
         if ((embedding.ModelPath is null) != (embedding.VocabPath is null))
             r.Error("Embedding:ModelPath / Embedding:VocabPath: set both (another model) or neither (the embedded model)");
@@ -48,30 +51,30 @@ public static class OptionsReader
             if (lane is not null) lanes[section.Key] = lane;
         }
 
-        var options = new
+        PartitionOptions partitionDefaults = new();
+        var partition = new PartitionOptions
         {
-            Partition = new PartitionOptions
-            {
-                Mode = r.Choice("Partition", PartitionMode.Credential),
-                Headers = r.HeaderNames("PartitionHeaders"),
-            },
-            Limits = new LimitsOptions
-            {
-                MaxRequestBytes = r.Long("Limits:MaxRequestBytes", 1 << 20, min: 1024),
-                MaxResponseBytes = r.Long("Limits:MaxResponseBytes", 8 << 20, min: 1024),
-                MaxPassthroughBytes = r.Long("Limits:MaxPassthroughBytes", 512L << 20, min: 1024),
-            },
-            Admin = new AdminOptions { Token = r.String("Admin:Token") },
-            Events = new EventsOptions
-            {
-                Enabled = r.Bool("Events:Enabled", true),
-                Retention = r.Duration("Events:Retention", TimeSpan.FromDays(7), positive: true),
-                MaxRows = r.Long("Events:MaxRows", 1_000_000, min: 1),
-            },
-            Metrics = new MetricsOptions { Port = (int)r.Long("Metrics:Port", 0, min: 0, max: 65535) },
+            Mode = r.Choice("Partition", partitionDefaults.Mode),
+            Headers = r.HeaderNames("PartitionHeaders"),
         };
-        if (options.Admin.Token is { Length: < 16 })
+        LimitsOptions limitsDefaults = new();
+        var limits = new LimitsOptions
+        {
+            MaxRequestBytes = r.Long("Limits:MaxRequestBytes", limitsDefaults.MaxRequestBytes, min: 1024),
+            MaxResponseBytes = r.Long("Limits:MaxResponseBytes", limitsDefaults.MaxResponseBytes, min: 1024),
+            MaxPassthroughBytes = r.Long("Limits:MaxPassthroughBytes", limitsDefaults.MaxPassthroughBytes, min: 1024),
+        };
+        var admin = new AdminOptions { Token = r.String("Admin:Token") };
+        if (admin.Token is { Length: < 16 })
             r.Error("Admin:Token is shorter than 16 characters; use a long random token (or leave it out to turn the admin API off)");
+        EventsOptions eventsDefaults = new();
+        var events = new EventsOptions
+        {
+            Enabled = r.Bool("Events:Enabled", eventsDefaults.Enabled),
+            Retention = r.Duration("Events:Retention", eventsDefaults.Retention, positive: true),
+            MaxRows = r.Long("Events:MaxRows", eventsDefaults.MaxRows, min: 1),
+        };
+        var metrics = new MetricsOptions { Port = (int)r.Long("Metrics:Port", new MetricsOptions().Port, min: 0, max: 65535) };
 
         if (r.Errors.Count > 0 || upstream is null) return (null, r.Errors);
         return (new RewriteProxyOptions
@@ -80,11 +83,11 @@ public static class OptionsReader
             Store = store,
             Embedding = embedding,
             Lanes = lanes,
-            Partition = options.Partition,
-            Limits = options.Limits,
-            Admin = options.Admin,
-            Events = options.Events,
-            Metrics = options.Metrics,
+            Partition = partition,
+            Limits = limits,
+            Admin = admin,
+            Events = events,
+            Metrics = metrics,
         }, r.Errors);
     }
 
@@ -115,20 +118,20 @@ public static class OptionsReader
                 r.Error($"{p}:QuestionPattern = '{pattern}' is not a valid .NET regex: {e.Message}");
             }
         }
-        return new LaneOptions
+        // Name and kind decide the defaults (MaxDrift is per kind); the record holds them.
+        var defaults = new LaneOptions { Name = name, Kind = kind };
+        return defaults with
         {
-            Name = name,
-            Kind = kind,
-            HitSimilarity = r.Unit($"{p}:HitSimilarity", DefaultHitSimilarity),
-            MaxDrift = r.Double($"{p}:MaxDrift", kind == LaneKind.Draft ? DefaultDraftMaxDrift : DefaultSiblingMaxDrift, 0, 2),
-            MinSpread = r.Unit($"{p}:MinSpread", Guard.DriftDefaults.MinSpread),
-            MaxSiblings = (int)r.Long($"{p}:MaxSiblings", 5, min: 1, max: 100),
-            MaxCandidates = (int)r.Long($"{p}:MaxCandidates", 20, min: 1, max: 1000),
-            OnDrift = r.Choice($"{p}:OnDrift", OnDrift.Retry),
-            Retries = (int)r.Long($"{p}:Retries", 1, min: 0, max: 5),
-            Mode = r.Choice($"{p}:Mode", GuardMode.Enforce),
+            HitSimilarity = r.Unit($"{p}:HitSimilarity", defaults.HitSimilarity),
+            MaxDrift = r.Double($"{p}:MaxDrift", defaults.MaxDrift, 0, 2),
+            MinSpread = r.Unit($"{p}:MinSpread", defaults.MinSpread),
+            MaxSiblings = (int)r.Long($"{p}:MaxSiblings", defaults.MaxSiblings, min: 1, max: 100),
+            MaxCandidates = (int)r.Long($"{p}:MaxCandidates", defaults.MaxCandidates, min: 1, max: 1000),
+            OnDrift = r.Choice($"{p}:OnDrift", defaults.OnDrift),
+            Retries = (int)r.Long($"{p}:Retries", defaults.Retries, min: 0, max: 5),
+            Mode = r.Choice($"{p}:Mode", defaults.Mode),
             QuestionPattern = regex,
-            Candidates = r.Choice($"{p}:Candidates", CandidateRule.Questions),
+            Candidates = r.Choice($"{p}:Candidates", defaults.Candidates),
         };
     }
 
@@ -234,7 +237,7 @@ public static class OptionsReader
         {
             var v = String(key);
             if (v is null) return fallback;
-            if (!TryParseDuration(v, out var t))
+            if (!DurationText.TryParse(v, out var t))
             {
                 Error($"{key} = '{v}' is not a duration; use e.g. 30s, 5m, 12h, 7d or 00:01:40");
                 return fallback;
@@ -252,26 +255,5 @@ public static class OptionsReader
             Error($"{key} = '{v}' is not allowed; allowed: {allowed}");
             return fallback;
         }
-    }
-
-    /// <summary>Parses "90s", "5m", "12h", "7d", "250ms" or a .NET TimeSpan.</summary>
-    public static bool TryParseDuration(string text, out TimeSpan value)
-    {
-        text = text.Trim();
-        var m = Regex.Match(text, @"^(\d+(?:\.\d+)?)\s*(ms|s|m|h|d)$", RegexOptions.IgnoreCase);
-        if (m.Success)
-        {
-            var n = double.Parse(m.Groups[1].Value, CultureInfo.InvariantCulture);
-            value = m.Groups[2].Value.ToLowerInvariant() switch
-            {
-                "ms" => TimeSpan.FromMilliseconds(n),
-                "s" => TimeSpan.FromSeconds(n),
-                "m" => TimeSpan.FromMinutes(n),
-                "h" => TimeSpan.FromHours(n),
-                _ => TimeSpan.FromDays(n),
-            };
-            return true;
-        }
-        return TimeSpan.TryParse(text, CultureInfo.InvariantCulture, out value);
     }
 }

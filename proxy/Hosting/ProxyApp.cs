@@ -8,7 +8,6 @@ using Microsoft.Extensions.DependencyInjection;
 using Microsoft.Extensions.Logging;
 using Prometheus;
 using RewriteProxy.Cache;
-using RewriteProxy.Cli;
 using RewriteProxy.Embedding;
 using RewriteProxy.Forwarding;
 using RewriteProxy.Lanes;
@@ -55,19 +54,22 @@ public static class ProxyApp
         services.AddSingleton(_ => UpstreamClient.Create(options.Upstream));
         services.AddSingleton<Passthrough>();
         services.AddSingleton<LaneUpstream>();
-        services.AddSingleton<LaneHandler>();
+        services.AddSingleton<RewriteFlow>();
+        services.AddSingleton<LaneRouter>();
         services.AddSingleton<FailOpenLog>();
         services.AddSingleton<LaneTally>();
         services.AddSingleton<IEmbedder>(sp =>
             CachingEmbedder.Over(OnnxEmbedder.Load(options.Embedding, sp.GetRequiredService<ILoggerFactory>().CreateLogger("embedding")),
                 options.Embedding.CacheSize));
-        services.AddSingleton(_ => new VectorIndex());
+        // As wide as the loaded model's vectors: Embedding:ModelPath may name a model of another width.
+        services.AddSingleton(sp => new VectorIndex(sp.GetRequiredService<IEmbedder>().Dimension));
         services.AddSingleton(_ => new AnchorGuard());
         services.AddSingleton<IRewriteStore>(sp => new SqliteRewriteStore(options.Store, options.Events,
             sp.GetRequiredService<ILoggerFactory>().CreateLogger("store")));
         services.AddSingleton(sp => new SemanticCache(sp.GetRequiredService<IRewriteStore>(), sp.GetRequiredService<VectorIndex>(),
-            sp.GetRequiredService<IEmbedder>(), sp.GetRequiredService<AnchorGuard>(), options.Store,
+            sp.GetRequiredService<IEmbedder>(), sp.GetRequiredService<AnchorGuard>(), sp.GetRequiredService<LaneTally>(), options.Store,
             sp.GetRequiredService<ILoggerFactory>().CreateLogger("cache")));
+        services.AddSingleton<IRewriteCache>(sp => sp.GetRequiredService<SemanticCache>());
         services.AddSingleton<EntryGauge>();
         overrides?.Invoke(services);
 
@@ -120,31 +122,9 @@ public static class ProxyApp
         var metrics = app.MapMetrics("/metrics");
         if (options.Metrics.Port > 0) metrics.RequireHost($"*:{options.Metrics.Port}");
 
-        app.MapPost("/lane/{name}/v1/chat/completions", (HttpContext context, string name, LaneHandler lanes) =>
-            lanes.HandleAsync(context, name));
-        app.Map("/lane/{name}/v1/{**rest}", async (HttpContext context, string name, Passthrough passthrough) =>
-        {
-            // A client whose base URL is a lane's may call other endpoints too; they pass through.
-            if (!options.Lanes.ContainsKey(name))
-            {
-                await LaneHandler.UnknownLaneAsync(context, options, name);
-                return;
-            }
-            var path = context.Request.Path.Value!;
-            await passthrough.ForwardAsync(context, path[(path.IndexOf("/v1/", StringComparison.Ordinal) + "/v1".Length)..]);
-        });
-        app.Map("/v1/{**rest}", (HttpContext context, Passthrough passthrough, LaneHandler lanes) =>
-        {
-            var rest = context.Request.Path.Value!["/v1".Length..];
-            if (HttpMethods.IsPost(context.Request.Method) && rest == "/chat/completions"
-                && context.Request.Headers[LaneHandler.Header.Lane].ToString() is { Length: > 0 } lane)
-                return lanes.HandleAsync(context, lane);
-            return passthrough.ForwardAsync(context, rest);
-        });
+        LaneEndpoints.Map(app, options);
 
-        app.MapFallback((HttpContext context) => ErrorResponse.WriteAsync(context, StatusCodes.Status404NotFound,
-            $"No route for {context.Request.Method} {context.Request.Path.Value}. RewriteProxy forwards /v1/... to the upstream " +
-            "and serves lanes at /lane/{name}/v1/chat/completions.", "invalid_request_error", "not_found"));
+        app.MapFallback(LaneEndpoints.NoRouteAsync);
     }
 
     /// <summary>The address the app actually listens on (useful with port 0).</summary>

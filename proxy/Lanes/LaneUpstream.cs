@@ -2,7 +2,6 @@ using System.Diagnostics;
 using System.Net.Http.Headers;
 using Microsoft.AspNetCore.Http;
 using RewriteProxy.Forwarding;
-using RewriteProxy.Hosting;
 using RewriteProxy.Telemetry;
 
 namespace RewriteProxy.Lanes;
@@ -19,7 +18,7 @@ public sealed record UpstreamAnswer(int Status, IReadOnlyList<KeyValuePair<strin
 /// </summary>
 public sealed class LaneUpstream(HttpMessageInvoker client, RewriteProxyOptions options)
 {
-    readonly Uri _endpoint = new(options.Upstream.BaseUrl.AbsoluteUri.TrimEnd('/') + "/chat/completions");
+    readonly string _base = options.Upstream.BaseUrl.AbsoluteUri.TrimEnd('/');
 
     /// <summary>Client headers that never go upstream on a lane call: hop-by-hop (RFC 9110 §7.6.1), framing, ours.</summary>
     static readonly HashSet<string> NotForwarded = new(StringComparer.OrdinalIgnoreCase)
@@ -35,9 +34,14 @@ public sealed class LaneUpstream(HttpMessageInvoker client, RewriteProxyOptions 
         "Content-Encoding", "Server", "Date",
     };
 
-    public async Task<UpstreamAnswer> CallAsync(IHeaderDictionary clientHeaders, byte[] body, string lane, CancellationToken stopping)
+    /// <param name="clientHeaders">The lane call's request headers.</param>
+    /// <param name="endpoint">Where the call goes below Upstream:BaseUrl: the lane call's own path and query.</param>
+    /// <param name="body">What the wire format sends upstream.</param>
+    /// <param name="lane">The lane's name, for the duration metric.</param>
+    /// <param name="stopping">The application's shutdown: a coalesced call outlives the caller that started it.</param>
+    public async Task<UpstreamAnswer> CallAsync(IHeaderDictionary clientHeaders, LaneEndpoint endpoint, byte[] body, string lane, CancellationToken stopping)
     {
-        using var request = new HttpRequestMessage(HttpMethod.Post, _endpoint);
+        using var request = new HttpRequestMessage(HttpMethod.Post, new Uri(_base + endpoint.UpstreamPath + endpoint.Query.Value));
         var named = new HashSet<string>(HopByHop.NamedByConnection(clientHeaders.Connection), StringComparer.OrdinalIgnoreCase);
         foreach (var (name, values) in clientHeaders)
         {

@@ -5,6 +5,10 @@ namespace RewriteProxy.Lanes;
 /// <summary>What a lane miss produced, shared by every caller coalesced onto it.</summary>
 public abstract record MissOutcome
 {
+    /// <summary>The 504 of a miss whose upstream did not answer within <c>Upstream:Timeout</c>.</summary>
+    public static MissOutcome UpstreamTimeout { get; } =
+        new Error(504, "upstream_error", "upstream_timeout", "The upstream did not answer within Upstream:Timeout.");
+
     /// <summary>A completion to write (JSON or SSE), with the guard's headers.</summary>
     public sealed record Answer(JsonObject Completion, double? MaxDrift, int Dropped, bool Observed,
         IReadOnlyList<KeyValuePair<string, string[]>> UpstreamHeaders) : MissOutcome;

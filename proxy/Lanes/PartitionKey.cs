@@ -1,7 +1,6 @@
 using System.Security.Cryptography;
 using System.Text;
 using Microsoft.AspNetCore.Http;
-using RewriteProxy.Hosting;
 
 namespace RewriteProxy.Lanes;
 

@@ -2,7 +2,6 @@ using System.Text;
 using System.Text.Json;
 using System.Text.Json.Nodes;
 using System.Text.RegularExpressions;
-using RewriteProxy.Hosting;
 using RewriteProxy.Wire;
 
 namespace RewriteProxy.Lanes;
@@ -11,30 +10,21 @@ namespace RewriteProxy.Lanes;
 public sealed record QuestionSite(string Question, int MessageIndex, string MessageText, int Start, int Length);
 
 /// <summary>The question of a lane call, or why the call cannot be cached (then it is a bypass).</summary>
-public sealed record Extraction(QuestionSite? Site, string? BypassReason)
+public sealed record Extraction(QuestionSite? Site, BypassReason? BypassReason)
 {
-    public static Extraction Bypass(string reason) => new(null, reason);
+    public static Extraction Bypass(BypassReason reason) => new(null, reason);
 }
 
 /// <summary>
-/// Finds the question: the text of the last user message (a string, or the text parts of an array), narrowed by the
-/// lane's QuestionPattern group <c>q</c> when one is set. Requests whose answer a cache cannot stand in for are bypassed.
+/// Finds the question: the text of the last user message of the request's chat-shaped view (a string, or the text parts
+/// of an array), narrowed by the lane's QuestionPattern group <c>q</c> when one is set. A request its wire format
+/// found uncacheable, or whose conversation holds tool turns or media, is bypassed.
 /// </summary>
 public static class QuestionExtractor
 {
-    /// <summary>Request fields that make an answer depend on more than the messages' text.</summary>
-    static readonly string[] UncacheableFields = ["tools", "functions", "tool_choice", "function_call", "audio", "prediction"];
-
-    public static Extraction Extract(ChatRequest request, LaneOptions lane)
+    public static Extraction Extract(LaneRequest request, LaneOptions lane)
     {
-        var body = request.Body;
-        foreach (var field in UncacheableFields)
-            if (body[field] is { } value && value.GetValueKind() != JsonValueKind.Null)
-                return Extraction.Bypass(field is "functions" or "tool_choice" or "function_call" ? "tools" : field);
-        if (body["n"] is JsonValue n && n.GetValueKind() == JsonValueKind.Number && (!n.TryGetValue<int>(out var count) || count != 1))
-            return Extraction.Bypass("n");
-        if (body["logprobs"] is JsonValue lp && lp.GetValueKind() == JsonValueKind.True) return Extraction.Bypass("logprobs");
-        if (body["modalities"] is JsonArray modalities && modalities.Any(m => m?.ToString() != "text")) return Extraction.Bypass("modalities");
+        if (request.Bypass is { } reason) return Extraction.Bypass(reason);
 
         var messages = request.Messages;
         var last = -1;
@@ -42,16 +32,16 @@ public static class QuestionExtractor
         {
             var message = (JsonObject)messages[i]!;
             if (message["tool_calls"] is not null || message["role"]!.GetValue<string>() is "tool" or "function")
-                return Extraction.Bypass("tools");
+                return Extraction.Bypass(BypassReason.Tools);
             foreach (var part in (message["content"] as JsonArray) ?? [])
                 if (part is JsonObject p && p["type"]?.ToString() is { } type && type != "text")
-                    return Extraction.Bypass("media");
+                    return Extraction.Bypass(BypassReason.Media);
             if (last < 0 && message["role"]!.GetValue<string>() == "user") last = i;
         }
-        if (last < 0) return Extraction.Bypass("no_question");
+        if (last < 0) return Extraction.Bypass(BypassReason.NoQuestion);
 
         var text = TextOf((JsonObject)messages[last]!);
-        if (text is null) return Extraction.Bypass("no_question");
+        if (text is null) return Extraction.Bypass(BypassReason.NoQuestion);
 
         int start = 0, length = text.Length;
         if (lane.QuestionPattern is { } pattern)
@@ -63,13 +53,13 @@ public static class QuestionExtractor
             }
             catch (RegexMatchTimeoutException)
             {
-                return Extraction.Bypass("no_question");
+                return Extraction.Bypass(BypassReason.NoQuestion);
             }
-            if (!match.Success || !match.Groups["q"].Success) return Extraction.Bypass("no_question");
+            if (!match.Success || !match.Groups["q"].Success) return Extraction.Bypass(BypassReason.NoQuestion);
             (start, length) = (match.Groups["q"].Index, match.Groups["q"].Length);
         }
         var question = text.Substring(start, length).Trim();
-        if (question.Length == 0) return Extraction.Bypass("no_question");
+        if (question.Length == 0) return Extraction.Bypass(BypassReason.NoQuestion);
         return new Extraction(new QuestionSite(question, last, text, start, length), null);
     }
 

@@ -8,7 +8,7 @@ namespace RewriteProxy.Telemetry;
 /// </summary>
 public static class DefaultMetrics
 {
-    static int _defaultsChosen;
+    static int DefaultsChosen;
 
     /// <summary>
     /// Keeps prometheus-net's process and GC series (resident memory, CPU, collections: what a soak watches) and
@@ -16,7 +16,7 @@ public static class DefaultMetrics
     /// </summary>
     public static void UseLintClean()
     {
-        if (Interlocked.Exchange(ref _defaultsChosen, 1) == 1) return;
+        if (Interlocked.Exchange(ref DefaultsChosen, 1) == 1) return;
         Prometheus.Metrics.SuppressDefaultMetrics(new SuppressDefaultMetricOptions
         {
             SuppressProcessMetrics = false,

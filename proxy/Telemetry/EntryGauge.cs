@@ -4,7 +4,7 @@ using RewriteProxy.Cache;
 namespace RewriteProxy.Telemetry;
 
 /// <summary>Fills <c>rewriteproxy_entries</c> just before a scrape, from the store, at most once every few seconds.</summary>
-public sealed class EntryGauge(IRewriteStore store, RewriteProxy.Hosting.RewriteProxyOptions options)
+public sealed class EntryGauge(IRewriteStore store, RewriteProxyOptions options)
 {
     /// <summary>Scrapes closer together than this reuse the last count: counting a large table on every scrape costs.</summary>
     static readonly TimeSpan MinInterval = TimeSpan.FromSeconds(1);

@@ -1,5 +1,6 @@
 using System.Collections.Concurrent;
 using Microsoft.Extensions.Logging;
+using RewriteProxy.Cache;
 
 namespace RewriteProxy.Telemetry;
 
@@ -7,11 +8,11 @@ namespace RewriteProxy.Telemetry;
 public sealed class FailOpenLog(ILogger<FailOpenLog> log)
 {
     static readonly TimeSpan Quiet = TimeSpan.FromMinutes(1);
-    readonly ConcurrentDictionary<string, (DateTimeOffset Last, long Suppressed)> _last = new();
+    readonly ConcurrentDictionary<FailOpenReason, (DateTimeOffset Last, long Suppressed)> _last = new();
 
-    public void Record(string reason, string message)
+    public void Record(FailOpenReason reason, string message)
     {
-        ProxyMetrics.FailOpen.WithLabels(reason).Inc();
+        ProxyMetrics.FailOpen.WithLabels(LabelValue.Of(reason)).Inc();
         var now = DateTimeOffset.UtcNow;
         var logIt = false;
         long suppressed = 0;
@@ -28,6 +29,6 @@ public sealed class FailOpenLog(ILogger<FailOpenLog> log)
         });
         if (logIt)
             log.LogError("fail-open ({Reason}): {Message}; calls go to the upstream uncached ({Suppressed} more since the last report)",
-                reason, message, suppressed);
+                LabelValue.Of(reason), message, suppressed);
     }
 }

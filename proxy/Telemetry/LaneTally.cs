@@ -1,4 +1,5 @@
 using RewriteProxy.Cache;
+using RewriteProxy.Guard;
 
 namespace RewriteProxy.Telemetry;
 
@@ -8,22 +9,25 @@ namespace RewriteProxy.Telemetry;
 /// </summary>
 public sealed class LaneTally(IRewriteStore store)
 {
-    public void Lookup(string lane, string result)
+    public void Lookup(string lane, CacheResult result)
     {
-        ProxyMetrics.Lookups.WithLabels(lane, result).Inc();
-        store.Count(lane, Tally.Lookup(result));
+        var label = LabelValue.Of(result);
+        ProxyMetrics.Lookups.WithLabels(lane, label).Inc();
+        store.Count(lane, Tally.Lookup(label));
     }
 
-    public void Dropped(string lane, string reason)
+    public void Dropped(string lane, DropReason reason)
     {
-        ProxyMetrics.Dropped.WithLabels(lane, reason).Inc();
-        store.Count(lane, Tally.Dropped(reason));
+        var label = LabelValue.Of(reason);
+        ProxyMetrics.Dropped.WithLabels(lane, label).Inc();
+        store.Count(lane, Tally.Dropped(label));
     }
 
-    public void Refused(string lane, string reason)
+    public void Refused(string lane, AnchorReason reason)
     {
-        ProxyMetrics.GuardRejections.WithLabels(lane, reason).Inc();
-        store.Count(lane, Tally.Refused(reason));
+        var label = LabelValue.Of(reason);
+        ProxyMetrics.GuardRejections.WithLabels(lane, label).Inc();
+        store.Count(lane, Tally.Refused(label));
     }
 
     public void Saved(string lane, long tokens)

@@ -1,4 +1,6 @@
 using Prometheus;
+using RewriteProxy.Cache;
+using RewriteProxy.Guard;
 
 namespace RewriteProxy.Telemetry;
 
@@ -8,32 +10,32 @@ namespace RewriteProxy.Telemetry;
 /// </summary>
 public static class ProxyMetrics
 {
-    static readonly string[] LookupResults = ["hit_exact", "hit_semantic", "miss", "bypass"];
-    static readonly string[] Verdicts = ["accepted", "dropped"];
-    static readonly string[] DropReasons = ["drift", "echo", "duplicate", "surplus", "policy"];
-    static readonly string[] FailOpenReasons = ["store", "index", "embedder"];
+    /// <summary>The <c>verdict</c> label of <c>rewriteproxy_drift</c>: whether the judged rewrite was kept.</summary>
+    public static readonly IReadOnlyList<string> Verdicts = ["accepted", "dropped"];
 
     /// <summary>
     /// Creates every known series at zero, so the first scrape already has them: a counter that first appears
     /// with a non-zero value loses that first increase in <c>rate()</c>, and dashboards show gaps.
     /// </summary>
-    public static void Declare(IEnumerable<RewriteProxy.Hosting.LaneOptions> lanes)
+    public static void Declare(IEnumerable<Lanes.LaneOptions> lanes)
     {
         foreach (var lane in lanes)
         {
             var name = lane.Name;
             LaneMaxDrift.WithLabels(name).Set(lane.MaxDrift);
-            foreach (var r in LookupResults) Lookups.WithLabels(name, r);
+            foreach (var r in LabelValue.All<CacheResult>()) Lookups.WithLabels(name, r);
             foreach (var v in Verdicts) Drift.WithLabels(name, v);
-            foreach (var r in DropReasons) Dropped.WithLabels(name, r);
-            foreach (var r in Cache.AnchorReason.All) GuardRejections.WithLabels(name, r);
+            foreach (var r in LabelValue.All<DropReason>()) Dropped.WithLabels(name, r);
+            foreach (var r in LabelValue.All<AnchorReason>()) GuardRejections.WithLabels(name, r);
             HitSimilarity.WithLabels(name);
             TokensSaved.WithLabels(name);
             Coalesced.WithLabels(name);
             Entries.WithLabels(name);
         }
-        foreach (var r in FailOpenReasons) FailOpen.WithLabels(r);
+        foreach (var r in LabelValue.All<FailOpenReason>()) FailOpen.WithLabels(r);
     }
+
+    static string Listed<T>() where T : struct, Enum => string.Join(", ", LabelValue.All<T>());
 
     /// <summary>Dense between 0.1 and 1.0, where drift thresholds live; 1.0–2.0 catches the opposite-meaning tail.</summary>
     static readonly double[] DriftBuckets =
@@ -43,7 +45,7 @@ public static class ProxyMetrics
         [0.5, 0.6, 0.7, 0.75, 0.8, 0.82, 0.84, 0.86, 0.88, 0.9, 0.92, 0.94, 0.96, 0.98, 0.99, 1.0];
 
     public static readonly Counter Lookups = Prometheus.Metrics.CreateCounter(
-        "rewriteproxy_lookups_total", "Lane calls by cache result (hit_exact, hit_semantic, miss, bypass).",
+        "rewriteproxy_lookups_total", $"Lane calls by cache result ({Listed<CacheResult>()}).",
         new CounterConfiguration { LabelNames = ["lane", "result"] });
 
     public static readonly Histogram HitSimilarity = Prometheus.Metrics.CreateHistogram(
@@ -51,7 +53,7 @@ public static class ProxyMetrics
         new HistogramConfiguration { LabelNames = ["lane"], Buckets = SimilarityBuckets });
 
     public static readonly Counter GuardRejections = Prometheus.Metrics.CreateCounter(
-        "rewriteproxy_guard_rejections_total", "Semantic candidates refused by the anchor guard, by reason.",
+        "rewriteproxy_guard_rejections_total", $"Semantic candidates refused by the anchor guard, by reason ({Listed<AnchorReason>()}).",
         new CounterConfiguration { LabelNames = ["lane", "reason"] });
 
     public static readonly Histogram Drift = Prometheus.Metrics.CreateHistogram(
@@ -59,7 +61,7 @@ public static class ProxyMetrics
         new HistogramConfiguration { LabelNames = ["lane", "verdict"], Buckets = DriftBuckets });
 
     public static readonly Counter Dropped = Prometheus.Metrics.CreateCounter(
-        "rewriteproxy_dropped_total", "Rewrites dropped by the drift guard, by reason (drift, echo, duplicate, surplus, policy).",
+        "rewriteproxy_dropped_total", $"Rewrites dropped by the drift guard, by reason ({Listed<DropReason>()}).",
         new CounterConfiguration { LabelNames = ["lane", "reason"] });
 
     public static readonly Histogram UpstreamDuration = Prometheus.Metrics.CreateHistogram(
@@ -87,6 +89,6 @@ public static class ProxyMetrics
         new GaugeConfiguration { LabelNames = ["lane"] });
 
     public static readonly Counter FailOpen = Prometheus.Metrics.CreateCounter(
-        "rewriteproxy_fail_open_total", "Lane calls forwarded uncached because the cache side failed (store, index, embedder).",
+        "rewriteproxy_fail_open_total", $"Lane calls forwarded uncached because the cache side failed ({Listed<FailOpenReason>()}).",
         new CounterConfiguration { LabelNames = ["reason"] });
 }

@@ -12,36 +12,14 @@ public sealed class ChatRequest
     public bool Stream { get; init; }
     public bool IncludeUsage { get; init; }
 
-    static readonly JsonDocumentOptions ReadOptions = new() { MaxDepth = 64 };
-
     /// <summary>Parses and checks the shape the proxy relies on; a bad body is a <see cref="ChatRequestException"/> (400).</summary>
-    public static ChatRequest Parse(ReadOnlySpan<byte> utf8)
+    /// <param name="utf8">The request body.</param>
+    /// <param name="pathModel">The model named by the path (an Azure OpenAI deployment), used when the body names none.</param>
+    public static ChatRequest Parse(ReadOnlySpan<byte> utf8, string? pathModel = null)
     {
-        if (!System.Text.Unicode.Utf8.IsValid(utf8))
-            throw new ChatRequestException("The request body is not valid UTF-8.");
-        JsonNode? root;
-        try
-        {
-            root = JsonNode.Parse(utf8, documentOptions: ReadOptions);
-            // JsonNode builds objects lazily: walk the tree now, so duplicate keys and unpaired surrogates are a
-            // 400 here instead of an exception wherever the tree is first read.
-            CheckTree(root);
-        }
-        catch (JsonException e)
-        {
-            throw new ChatRequestException($"The request body is not valid JSON: {e.Message}");
-        }
-        catch (ArgumentException e)
-        {
-            throw new ChatRequestException($"The request body has a repeated property name: {e.Message}");
-        }
-        catch (InvalidOperationException e)
-        {
-            throw new ChatRequestException($"The request body cannot be read: {e.Message}");
-        }
-        if (root is not JsonObject body) throw new ChatRequestException("The request body must be a JSON object.");
-        if (body["model"] is not JsonValue modelValue || modelValue.GetValueKind() != JsonValueKind.String)
-            throw new ChatRequestException("'model' is required and must be a string.", "model");
+        var body = WireJson.ParseObject(utf8);
+        var model = WireJson.String(body["model"]) ?? pathModel;
+        if (model is null) throw new ChatRequestException("'model' is required and must be a string.", "model");
         if (body["messages"] is not JsonArray messages)
             throw new ChatRequestException("'messages' is required and must be an array.", "messages");
         if (messages.Count == 0) throw new ChatRequestException("'messages' must not be empty.", "messages");
@@ -60,53 +38,17 @@ public sealed class ChatRequest
                     throw new ChatRequestException("A message's 'content' must be a string or an array of content-part objects.", "messages");
             }
         }
-        var stream = Flag(body, "stream");
-        var includeUsage = body["stream_options"] is JsonObject so && Flag(so, "include_usage");
+        var stream = WireJson.Flag(body, "stream");
+        var includeUsage = body["stream_options"] is JsonObject so && WireJson.Flag(so, "include_usage");
         return new ChatRequest
         {
             Body = body,
-            Model = modelValue.GetValue<string>(),
+            Model = model,
             Messages = messages,
             Stream = stream,
             IncludeUsage = includeUsage,
         };
     }
-
-    static void CheckTree(JsonNode? node)
-    {
-        switch (node)
-        {
-            case JsonObject o:
-                foreach (var (_, value) in o) CheckTree(value);
-                break;
-            case JsonArray a:
-                foreach (var value in a) CheckTree(value);
-                break;
-            case JsonValue v when v.GetValueKind() == JsonValueKind.String:
-                var text = v.GetValue<string>();
-                if (!IsWellFormed(text)) throw new ChatRequestException("The request body holds a string with an unpaired surrogate escape.");
-                break;
-        }
-    }
-
-    static bool IsWellFormed(string text)
-    {
-        for (var i = 0; i < text.Length; i++)
-        {
-            if (!char.IsSurrogate(text[i])) continue;
-            if (char.IsHighSurrogate(text[i]) && i + 1 < text.Length && char.IsLowSurrogate(text[i + 1])) i++;
-            else return false;
-        }
-        return true;
-    }
-
-    static bool Flag(JsonObject o, string name) => o[name] switch
-    {
-        null => false,
-        JsonValue v when v.GetValueKind() == JsonValueKind.True => true,
-        JsonValue v when v.GetValueKind() is JsonValueKind.False or JsonValueKind.Null => false,
-        _ => throw new ChatRequestException($"'{name}' must be a boolean.", name),
-    };
 
     /// <summary>The body to send upstream for a lane miss: never streamed (the proxy guards the whole answer first).</summary>
     public byte[] UpstreamBody()

@@ -13,7 +13,11 @@ public interface IWireFormat
     /// <summary>Short name, part of the scope: entries of one format are never served in another.</summary>
     string Name { get; }
 
+    /// <summary>Request headers that change the answer (an API version, beta features): part of the scope.</summary>
+    IReadOnlyList<string> ScopeHeaders { get; }
+
     /// <summary>Reads a request body; a body the proxy cannot read is a <see cref="ChatRequestException"/> (400).</summary>
+    /// <param name="utf8">The request body.</param>
     /// <param name="pathModel">The model named by the path (an Azure OpenAI deployment), used when the body names none.</param>
     LaneRequest Read(ReadOnlySpan<byte> utf8, string? pathModel);
 

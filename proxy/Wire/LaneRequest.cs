@@ -27,11 +27,14 @@ public sealed class LaneRequest
     /// <summary>Chat completions only: <c>stream_options.include_usage</c>.</summary>
     public bool IncludeUsage { get; init; }
 
-    /// <summary>Why a cache cannot stand in for this call (a <see cref="BypassReason"/> value), or null.</summary>
-    public string? Bypass { get; init; }
+    /// <summary>Why a cache cannot stand in for this call, or null.</summary>
+    public BypassReason? Bypass { get; init; }
 }
 
 /// <summary>An upstream answer to a lane miss, read in the call's format.</summary>
 /// <param name="Body">The answer as the upstream sent it; relayed with only the text replaced.</param>
 /// <param name="Content">The text of the answer (a draft, or sibling lines).</param>
+/// <param name="Model">The model the upstream says answered, if it says.</param>
+/// <param name="InputTokens">Prompt tokens the upstream counted.</param>
+/// <param name="OutputTokens">Completion tokens the upstream counted.</param>
 public sealed record LaneAnswer(JsonObject Body, string Content, string? Model, int InputTokens, int OutputTokens);

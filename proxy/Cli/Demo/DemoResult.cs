@@ -9,6 +9,7 @@ public sealed record DemoSettings
     /// <summary>Concurrent clients: enough to overlap the scripted upstream's delays on a small machine.</summary>
     public const int DefaultClients = 4;
 
+    /// <summary>Relative to the current directory, which <c>dotnet run</c> leaves where it was typed (RewriteProxy.csproj).</summary>
     public const string DefaultOut = "demo-report";
 
     public int Seed { get; init; } = DefaultSeed;

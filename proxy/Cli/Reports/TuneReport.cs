@@ -2,7 +2,7 @@ using System.Globalization;
 using System.Text;
 using System.Text.Json;
 using System.Text.Json.Nodes;
-using RewriteProxy.Hosting;
+using RewriteProxy.Lanes;
 
 namespace RewriteProxy.Cli.Reports;
 

@@ -17,6 +17,8 @@ public sealed class MessagesFormat : IWireFormat
 
     public string Name => "messages";
 
+    public IReadOnlyList<string> ScopeHeaders { get; } = ["anthropic-version", "anthropic-beta"];
+
     /// <summary>Fields that are not output-changing parameters (see <see cref="Responses.ResponsesFormat"/> for the rule).</summary>
     static readonly HashSet<string> NotParameters =
         ["messages", "model", "system", "stream", "metadata", "service_tier", "cache_control", "tools", "mcp_servers", "container"];
@@ -30,7 +32,7 @@ public sealed class MessagesFormat : IWireFormat
         if (turns.Count == 0) throw new ChatRequestException("'messages' must not be empty.", "messages");
 
         var messages = new JsonArray();
-        string? bypass = null;
+        BypassReason? bypass = null;
         var (system, systemBypass) = ReadContent(body["system"], "system", allowAbsent: true);
         bypass ??= systemBypass;
         if (system is not null) messages.Add(new JsonObject { ["role"] = "system", ["content"] = system });
@@ -60,7 +62,7 @@ public sealed class MessagesFormat : IWireFormat
     }
 
     /// <summary>A string, or content blocks of which only text is cacheable; returns the view's content and a bypass reason.</summary>
-    static (JsonNode? Content, string? Bypass) ReadContent(JsonNode? content, string field, bool allowAbsent)
+    static (JsonNode? Content, BypassReason? Bypass) ReadContent(JsonNode? content, string field, bool allowAbsent)
     {
         switch (content)
         {
@@ -70,7 +72,7 @@ public sealed class MessagesFormat : IWireFormat
                 return (v.GetValue<string>(), null);
             case JsonArray blocks:
                 var texts = new JsonArray();
-                string? bypass = null;
+                BypassReason? bypass = null;
                 foreach (var node in blocks)
                 {
                     if (node is not JsonObject block) throw new ChatRequestException("Each content block must be an object.", field);

@@ -17,6 +17,8 @@ public sealed class ResponsesFormat : IWireFormat
 
     public string Name => "responses";
 
+    public IReadOnlyList<string> ScopeHeaders { get; } = [];
+
     /// <summary>
     /// Fields that are not output-changing parameters: the messages and model (scoped on their own), streaming,
     /// bookkeeping that never changes the text, and the fields that bypass when set. Any other field, known or added
@@ -60,7 +62,7 @@ public sealed class ResponsesFormat : IWireFormat
         };
     }
 
-    static string? Bypass(JsonObject body)
+    static BypassReason? Bypass(JsonObject body)
     {
         if (WireJson.IsSet(body["tools"])) return BypassReason.Tools;
         if (WireJson.IsSet(body["previous_response_id"])) return BypassReason.PreviousResponse;
@@ -73,7 +75,7 @@ public sealed class ResponsesFormat : IWireFormat
     }
 
     /// <summary>Adds the input's turns to the view; returns a bypass reason for input a cache cannot stand in for.</summary>
-    static string? ReadInput(JsonNode? input, JsonArray messages)
+    static BypassReason? ReadInput(JsonNode? input, JsonArray messages)
     {
         switch (input)
         {
@@ -99,7 +101,7 @@ public sealed class ResponsesFormat : IWireFormat
     }
 
     /// <summary>A message's content as a string or text parts; images, files and audio bypass.</summary>
-    static (JsonNode? Content, string? Bypass) ReadContent(JsonNode? content)
+    static (JsonNode? Content, BypassReason? Bypass) ReadContent(JsonNode? content)
     {
         switch (content)
         {

@@ -22,14 +22,14 @@ public class ConcurrentEmbedBenchmarks
         "What are the visiting hours at Northgate Hospital on Sundays?",
     ];
 
-    OnnxEmbedder embedder = null!;
+    OnnxEmbedder _embedder = null!;
 
     /// <summary>1 = one session shared by all callers with every core as its threads; 2 = two sessions, one thread each.</summary>
     [Params(1, 2)]
     public int Sessions { get; set; }
 
     [GlobalSetup]
-    public void Setup() => embedder = OnnxEmbedder.Load(new EmbeddingOptions(), Sessions);
+    public void Setup() => _embedder = OnnxEmbedder.Load(new EmbeddingOptions(), Sessions);
 
     [Benchmark(OperationsPerInvoke = Callers * EmbedsPerCaller)]
     public void Four_callers_one_question_each()
@@ -41,12 +41,12 @@ public class ConcurrentEmbedBenchmarks
             callers[c] = Task.Run(() =>
             {
                 for (int i = 0; i < EmbedsPerCaller; i++)
-                    embedder.Embed(question);
+                    _embedder.Embed(question);
             });
         }
         Task.WaitAll(callers);
     }
 
     [GlobalCleanup]
-    public void Cleanup() => embedder.Dispose();
+    public void Cleanup() => _embedder.Dispose();
 }

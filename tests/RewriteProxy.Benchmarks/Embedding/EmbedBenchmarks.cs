@@ -33,19 +33,19 @@ public class EmbedBenchmarks
         "or a single-ride code. Each ride is free for the first thirty minutes on an annual plan; after that an " +
         "overtime fee applies for every further fifteen minutes, charged when the bike is docked again.", 6));
 
-    OnnxEmbedder embedder = null!;
-    InferenceSession session = null!;
-    readonly RunOptions runOptions = new();
-    string[] inputNames = null!;
-    readonly string[] outputNames = ["last_hidden_state"];
-    OrtValue[] questionInput = null!, batchInput = null!, draftInput = null!;
+    OnnxEmbedder _embedder = null!;
+    InferenceSession _session = null!;
+    readonly RunOptions _runOptions = new();
+    string[] _inputNames = null!;
+    readonly string[] _outputNames = ["last_hidden_state"];
+    OrtValue[] _questionInput = null!, _batchInput = null!, _draftInput = null!;
 
     [GlobalSetup]
     public void Setup()
     {
         var options = new EmbeddingOptions();
         // One session with every core, as the bare session below: only the code around the run differs.
-        embedder = OnnxEmbedder.Load(options, sessionCount: 1);
+        _embedder = OnnxEmbedder.Load(options, sessionCount: 1);
         EmbeddingModelSource source = EmbeddingModelSource.Packaged();
         var sessionOptions = new Microsoft.ML.OnnxRuntime.SessionOptions
         {
@@ -54,13 +54,13 @@ public class EmbedBenchmarks
             IntraOpNumThreads = Environment.ProcessorCount,
             InterOpNumThreads = 1,
         };
-        session = new InferenceSession(source.Model, sessionOptions);
-        inputNames = session.InputMetadata.Keys.ToArray();
+        _session = new InferenceSession(source.Model, sessionOptions);
+        _inputNames = _session.InputMetadata.Keys.ToArray();
         WordPieceEncoder encoder = WordPieceEncoder.Load(new MemoryStream(source.Vocabulary), "vocab.txt", options.MaxTokens);
 
-        questionInput = Prepare(encoder, [Question]);
-        batchInput = Prepare(encoder, Questions);
-        draftInput = Prepare(encoder, [Draft]);
+        _questionInput = Prepare(encoder, [Question]);
+        _batchInput = Prepare(encoder, Questions);
+        _draftInput = Prepare(encoder, [Draft]);
         Console.WriteLine($"// word pieces: question {encoder.Encode(Question)!.Count}, batch longest {Questions.Max(q => encoder.Encode(q)!.Count)}, draft {encoder.Encode(Draft)!.Count}");
     }
 
@@ -78,7 +78,7 @@ public class EmbedBenchmarks
                 mask[r * longest + t] = 1;
             }
         long[] shape = [texts.Length, longest];
-        return inputNames.Select(name => name switch
+        return _inputNames.Select(name => name switch
         {
             "input_ids" => OrtValue.CreateTensorValueFromMemory(ids, shape),
             "attention_mask" => OrtValue.CreateTensorValueFromMemory(mask, shape),
@@ -88,35 +88,35 @@ public class EmbedBenchmarks
 
     float BareRun(OrtValue[] input)
     {
-        using var outputs = session.Run(runOptions, inputNames, input, outputNames);
+        using var outputs = _session.Run(_runOptions, _inputNames, input, _outputNames);
         return outputs[0].GetTensorDataAsSpan<float>()[0];
     }
 
     [BenchmarkCategory("question-16"), Benchmark(Baseline = true)]
-    public float Question_bare_run() => BareRun(questionInput);
+    public float Question_bare_run() => BareRun(_questionInput);
 
     [BenchmarkCategory("question-16"), Benchmark]
-    public float[] Question_embed() => embedder.Embed(Question);
+    public float[] Question_embed() => _embedder.Embed(Question);
 
     [BenchmarkCategory("batch-6"), Benchmark(Baseline = true)]
-    public float Batch_bare_run() => BareRun(batchInput);
+    public float Batch_bare_run() => BareRun(_batchInput);
 
     [BenchmarkCategory("batch-6"), Benchmark]
-    public float[][] Batch_embed() => embedder.Embed(Questions);
+    public float[][] Batch_embed() => _embedder.Embed(Questions);
 
     [BenchmarkCategory("draft-256"), Benchmark(Baseline = true)]
-    public float Draft_bare_run() => BareRun(draftInput);
+    public float Draft_bare_run() => BareRun(_draftInput);
 
     [BenchmarkCategory("draft-256"), Benchmark]
-    public float[] Draft_embed() => embedder.Embed(Draft);
+    public float[] Draft_embed() => _embedder.Embed(Draft);
 
     [GlobalCleanup]
     public void Cleanup()
     {
-        embedder.Dispose();
-        session.Dispose();
-        foreach (OrtValue value in questionInput.Concat(batchInput).Concat(draftInput))
+        _embedder.Dispose();
+        _session.Dispose();
+        foreach (OrtValue value in _questionInput.Concat(_batchInput).Concat(_draftInput))
             value.Dispose();
-        runOptions.Dispose();
+        _runOptions.Dispose();
     }
 }

@@ -52,30 +52,30 @@ public class HitBenchmarks
     const string Draft = "Riverton bike-share rides are free for the first thirty minutes on an annual plan. After that an " +
         "overtime fee starts and is charged for every further fifteen minutes you keep the bike, until it is docked again.";
 
-    FixedUpstream upstream = null!;
-    WebApplication proxy = null!;
-    HttpClient client = null!;
-    string storeFolder = null!;
-    byte[] questionBody = null!, paraphraseBody = null!;
-    int upstreamCallsAfterSeed;
+    FixedUpstream _upstream = null!;
+    WebApplication _proxy = null!;
+    HttpClient _client = null!;
+    string _storeFolder = null!;
+    byte[] _questionBody = null!, _paraphraseBody = null!;
+    int _upstreamCallsAfterSeed;
 
-    InferenceSession session = null!, proxySizedSession = null!;
-    readonly RunOptions runOptions = new();
-    string[] inputNames = null!;
-    readonly string[] outputNames = ["last_hidden_state"];
-    OrtValue[] paraphraseInput = null!;
+    InferenceSession _session = null!, _proxySizedSession = null!;
+    readonly RunOptions _runOptions = new();
+    string[] _inputNames = null!;
+    readonly string[] _outputNames = ["last_hidden_state"];
+    OrtValue[] _paraphraseInput = null!;
 
     [GlobalSetup]
     public void Setup() => SetupAsync().GetAwaiter().GetResult();
 
     async Task SetupAsync()
     {
-        upstream = await FixedUpstream.StartAsync(Draft);
-        storeFolder = Path.Combine(Path.GetTempPath(), "rewriteproxy-bench", Guid.NewGuid().ToString("N"));
+        _upstream = await FixedUpstream.StartAsync(Draft);
+        _storeFolder = Path.Combine(Path.GetTempPath(), "rewriteproxy-bench", Guid.NewGuid().ToString("N"));
         var configuration = new ConfigurationBuilder().AddInMemoryCollection(new Dictionary<string, string?>
         {
-            ["Upstream:BaseUrl"] = upstream.BaseUrl.ToString(),
-            ["Store:Path"] = Path.Combine(storeFolder, "cache.db"),
+            ["Upstream:BaseUrl"] = _upstream.BaseUrl.ToString(),
+            ["Store:Path"] = Path.Combine(_storeFolder, "cache.db"),
             ["Lanes:draft:Kind"] = "draft",
             // As config/rewriteproxy.json ships it.
             ["Lanes:draft:HitSimilarity"] = "0.85",
@@ -87,38 +87,40 @@ public class HitBenchmarks
         }).Build();
         var (options, errors) = OptionsReader.Read(configuration);
         if (options is null) throw new InvalidOperationException(string.Join("\n", errors));
-        proxy = ProxyApp.Build(options, configuration, "http://127.0.0.1:0");
-        await proxy.StartAsync();
-        client = new HttpClient { BaseAddress = ProxyApp.BoundAddress(proxy) };
+        _proxy = ProxyApp.Build(options, configuration, "http://127.0.0.1:0");
+        await _proxy.StartAsync();
+        _client = new HttpClient { BaseAddress = ProxyApp.BoundAddress(_proxy) };
 
-        questionBody = Body(Question);
-        paraphraseBody = Body(Paraphrase);
-        await ExpectAsync(questionBody, "miss");
-        await ExpectAsync(questionBody, "hit-exact");
-        await ExpectAsync(paraphraseBody, "hit-semantic");
-        upstreamCallsAfterSeed = upstream.Calls;
+        _questionBody = Body(Question);
+        _paraphraseBody = Body(Paraphrase);
+        await ExpectAsync(_questionBody, "miss");
+        await ExpectAsync(_questionBody, "hit-exact");
+        await ExpectAsync(_paraphraseBody, "hit-semantic");
+        _upstreamCallsAfterSeed = _upstream.Calls;
 
         EmbeddingModelSource source = EmbeddingModelSource.Packaged();
         // The same session settings as the proxy's embedder with Embedding:Threads = 0 (every core); see EmbedBenchmarks.
-        session = new InferenceSession(source.Model, new Microsoft.ML.OnnxRuntime.SessionOptions
+        _session = new InferenceSession(source.Model, new Microsoft.ML.OnnxRuntime.SessionOptions
         {
             GraphOptimizationLevel = GraphOptimizationLevel.ORT_ENABLE_ALL,
             ExecutionMode = ExecutionMode.ORT_SEQUENTIAL,
             IntraOpNumThreads = Environment.ProcessorCount,
             InterOpNumThreads = 1,
         });
-        // The proxy's embedder splits the cores over OnnxEmbedder.DefaultSessions sessions (2 sessions x 1 thread on 2
-        // cores), so one semantic hit runs on a session of that size: this is the floor with the same session shape.
-        proxySizedSession = new InferenceSession(source.Model, new Microsoft.ML.OnnxRuntime.SessionOptions
+        // The proxy's embedder splits the cores over OnnxEmbedder.DefaultSessions sessions (now one session with every
+        // core) and its threads do not spin (OnnxEmbedder.AllowSpinning): this is the floor with the same session settings.
+        var proxySized = new Microsoft.ML.OnnxRuntime.SessionOptions
         {
             GraphOptimizationLevel = GraphOptimizationLevel.ORT_ENABLE_ALL,
             ExecutionMode = ExecutionMode.ORT_SEQUENTIAL,
             IntraOpNumThreads = Math.Max(1, Environment.ProcessorCount / Math.Min(OnnxEmbedder.DefaultSessions, Environment.ProcessorCount)),
             InterOpNumThreads = 1,
-        });
-        inputNames = session.InputMetadata.Keys.ToArray();
+        };
+        proxySized.AddSessionConfigEntry("session.intra_op.allow_spinning", OnnxEmbedder.AllowSpinning ? "1" : "0");
+        _proxySizedSession = new InferenceSession(source.Model, proxySized);
+        _inputNames = _session.InputMetadata.Keys.ToArray();
         var encoder = WordPieceEncoder.Load(new MemoryStream(source.Vocabulary), "vocab.txt", options.Embedding.MaxTokens);
-        paraphraseInput = Prepare(encoder.Encode(Paraphrase)!);
+        _paraphraseInput = Prepare(encoder.Encode(Paraphrase)!);
     }
 
     static byte[] Body(string question) => Encoding.UTF8.GetBytes(new JsonObject
@@ -137,7 +139,7 @@ public class HitBenchmarks
             Content = new ByteArrayContent(body) { Headers = { ContentType = new MediaTypeHeaderValue("application/json") } },
         };
         request.Headers.Authorization = new AuthenticationHeaderValue("Bearer", "sk-bench-tenant");
-        using var response = await client.SendAsync(request);
+        using var response = await _client.SendAsync(request);
         await response.Content.ReadAsByteArrayAsync();
         if (!response.IsSuccessStatusCode) throw new InvalidOperationException($"lane call answered {(int)response.StatusCode}");
         return response.Headers.TryGetValues("X-Rewrite-Cache", out var values) ? values.First() : "";
@@ -153,7 +155,7 @@ public class HitBenchmarks
     {
         var ids = pieces.Select(p => (long)p).ToArray();
         long[] shape = [1, ids.Length];
-        return inputNames.Select(name => name switch
+        return _inputNames.Select(name => name switch
         {
             "input_ids" => OrtValue.CreateTensorValueFromMemory(ids, shape),
             "attention_mask" => OrtValue.CreateTensorValueFromMemory(Enumerable.Repeat(1L, ids.Length).ToArray(), shape),
@@ -164,22 +166,22 @@ public class HitBenchmarks
     [Benchmark(Baseline = true)]
     public float Bare_model_run()
     {
-        using var outputs = session.Run(runOptions, inputNames, paraphraseInput, outputNames);
+        using var outputs = _session.Run(_runOptions, _inputNames, _paraphraseInput, _outputNames);
         return outputs[0].GetTensorDataAsSpan<float>()[0];
     }
 
     [Benchmark]
     public float Bare_model_run_proxy_sized_session()
     {
-        using var outputs = proxySizedSession.Run(runOptions, inputNames, paraphraseInput, outputNames);
+        using var outputs = _proxySizedSession.Run(_runOptions, _inputNames, _paraphraseInput, _outputNames);
         return outputs[0].GetTensorDataAsSpan<float>()[0];
     }
 
     [Benchmark]
-    public string Semantic_hit() => PostAsync(paraphraseBody).GetAwaiter().GetResult();
+    public string Semantic_hit() => PostAsync(_paraphraseBody).GetAwaiter().GetResult();
 
     [Benchmark]
-    public string Exact_hit() => PostAsync(questionBody).GetAwaiter().GetResult();
+    public string Exact_hit() => PostAsync(_questionBody).GetAwaiter().GetResult();
 
     /// <summary>The floor of any call through the proxy on this machine: one GET round trip that does no work.</summary>
     [Benchmark]
@@ -187,7 +189,7 @@ public class HitBenchmarks
 
     async Task<int> HealthAsync()
     {
-        using var response = await client.GetAsync("/healthz");
+        using var response = await _client.GetAsync("/healthz");
         return (await response.Content.ReadAsByteArrayAsync()).Length;
     }
 
@@ -195,16 +197,16 @@ public class HitBenchmarks
     public void Cleanup()
     {
         // A hit that went upstream would have timed the upstream, not the cache.
-        var extra = upstream.Calls - upstreamCallsAfterSeed;
-        client.Dispose();
-        proxy.StopAsync().GetAwaiter().GetResult();
-        proxy.DisposeAsync().AsTask().GetAwaiter().GetResult();
-        upstream.DisposeAsync().AsTask().GetAwaiter().GetResult();
-        session.Dispose();
-        proxySizedSession.Dispose();
-        foreach (var value in paraphraseInput) value.Dispose();
-        runOptions.Dispose();
-        try { Directory.Delete(storeFolder, recursive: true); } catch (IOException) { }
+        var extra = _upstream.Calls - _upstreamCallsAfterSeed;
+        _client.Dispose();
+        _proxy.StopAsync().GetAwaiter().GetResult();
+        _proxy.DisposeAsync().AsTask().GetAwaiter().GetResult();
+        _upstream.DisposeAsync().AsTask().GetAwaiter().GetResult();
+        _session.Dispose();
+        _proxySizedSession.Dispose();
+        foreach (var value in _paraphraseInput) value.Dispose();
+        _runOptions.Dispose();
+        try { Directory.Delete(_storeFolder, recursive: true); } catch (IOException) { }
         if (extra != 0) throw new InvalidOperationException($"{extra} hit(s) reached the upstream");
     }
 }

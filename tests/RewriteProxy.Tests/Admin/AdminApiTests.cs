@@ -21,7 +21,7 @@ public sealed class AdminApiTests : UpstreamAndProxy
     {
         upstream.Completion = r => ScriptedUpstream.LastUserText(r).Contains("garden")
             ? "Which bin takes garden waste?\nHow often is garden waste collected in winter?"
-            : "A draft answer: " + ScriptedUpstream.LastUserText(r);
+            : ScriptedUpstream.DraftAnswer(r);
     }
 
     HttpRequestMessage Admin(HttpMethod method, string path, string? token = Token)
@@ -45,7 +45,7 @@ public sealed class AdminApiTests : UpstreamAndProxy
     [Fact]
     public async Task Without_a_configured_token_the_admin_api_is_off()
     {
-        await using var proxy = await TestProxy.StartAsync(Upstream.BaseUrl);
+        await using var proxy = await StartProxyAsync();
         using var response = await proxy.Client.SendAsync(Admin(HttpMethod.Get, "/admin/stats"));
         Assert.Equal(HttpStatusCode.NotFound, response.StatusCode);
     }

@@ -10,7 +10,7 @@ namespace RewriteProxy.Tests.Cache;
 /// </summary>
 public static class AnchorGuardCases
 {
-    public sealed record Pair(string Asked, string Cached, string? Reason, bool OffTopic = false)
+    public sealed record Pair(string Asked, string Cached, AnchorReason? Reason, bool OffTopic = false)
     {
         public bool IsParaphrase => Reason is null && !OffTopic;
         public override string ToString() => $"{Asked} | {Cached}";

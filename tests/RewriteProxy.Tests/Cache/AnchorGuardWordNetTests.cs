@@ -1,6 +1,8 @@
 using System.Diagnostics;
 using RewriteProxy.Cache;
 
+using RewriteProxy.Tests.Fixtures;
+
 namespace RewriteProxy.Tests.Cache;
 
 /// <summary>
@@ -52,13 +54,6 @@ public sealed class AnchorGuardWordNetTests
     static IEnumerable<(string A, string B)> AllPairs() =>
         new[] { "data.noun", "data.verb", "data.adj", "data.adv" }.SelectMany(ReadPairs);
 
-    static string RepositoryRoot()
-    {
-        for (var dir = new DirectoryInfo(AppContext.BaseDirectory); dir is not null; dir = dir.Parent)
-            if (File.Exists(Path.Combine(dir.FullName, "RewriteProxy.sln"))) return dir.FullName;
-        throw new InvalidOperationException("RewriteProxy.sln not found above the test binaries");
-    }
-
     [Fact]
     public void Questions_differing_only_by_a_WordNet_antonym_pair_are_refused()
     {
@@ -80,7 +75,7 @@ public sealed class AnchorGuardWordNetTests
     public void Every_single_word_WordNet_antonym_pair_is_in_the_shipped_table()
     {
         RequireWordNet();
-        var table = File.ReadAllLines(Path.Combine(RepositoryRoot(), TablePath))
+        var table = File.ReadAllLines(Path.Combine(RepositoryRoot.Path, TablePath))
             .Where(l => !l.StartsWith('#')).Select(l => l.Split('\t')).Select(f => (f[0], f[1])).ToHashSet();
         var missing = AllPairs().Where(p => !table.Contains(p) || !table.Contains((p.B, p.A))).Select(p => $"{p.A}/{p.B}").ToList();
         Assert.True(missing.Count == 0, $"missing from {TablePath}: {string.Join(", ", missing.Take(30))}");
@@ -90,7 +85,7 @@ public sealed class AnchorGuardWordNetTests
     public async Task Shipped_table_is_what_the_generator_makes_from_WordNet()
     {
         RequireWordNet();
-        var root = RepositoryRoot();
+        var root = RepositoryRoot.Path;
         var start = new ProcessStartInfo("python3", [Generator, "--wordnet", WordNetDir])
         {
             WorkingDirectory = root, RedirectStandardOutput = true, RedirectStandardError = true,

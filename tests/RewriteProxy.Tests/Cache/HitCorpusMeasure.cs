@@ -1,6 +1,7 @@
 using System.Text;
 using RewriteProxy.Cache;
 using RewriteProxy.Embedding;
+using RewriteProxy.Telemetry;
 using RewriteProxy.Tests.Corpus;
 using RewriteProxy.Tests.Fixtures;
 
@@ -31,11 +32,11 @@ public static class HitCorpusMeasure
 {
     public static readonly string[] Parts = ["dev", "test"];
 
-    static readonly Lazy<IReadOnlyList<CorpusPair>> s_pairs = new(LoadAll);
-    static readonly Lock s_gate = new();
-    static readonly Dictionary<string, float[]> s_vectors = new(StringComparer.Ordinal);
+    static readonly Lazy<IReadOnlyList<CorpusPair>> AllPairs = new(LoadAll);
+    static readonly Lock Gate = new();
+    static readonly Dictionary<string, float[]> VectorsByText = new(StringComparer.Ordinal);
 
-    public static IReadOnlyList<CorpusPair> Pairs => s_pairs.Value;
+    public static IReadOnlyList<CorpusPair> Pairs => AllPairs.Value;
 
     static IReadOnlyList<CorpusPair> LoadAll() =>
     [
@@ -48,16 +49,16 @@ public static class HitCorpusMeasure
     /// <summary>Vectors of every corpus question from <paramref name="embedder"/>, batched, each text once per run.</summary>
     public static IReadOnlyDictionary<string, float[]> Vectors(IEmbedder embedder)
     {
-        lock (s_gate)
+        lock (Gate)
         {
             var missing = Pairs.SelectMany(p => new[] { p.Cached, p.Asked }).Distinct(StringComparer.Ordinal)
-                .Where(t => !s_vectors.ContainsKey(t)).ToList();
+                .Where(t => !VectorsByText.ContainsKey(t)).ToList();
             foreach (var batch in missing.Chunk(32))
             {
                 var vectors = embedder.Embed(batch);
-                for (var i = 0; i < batch.Length; i++) s_vectors[batch[i]] = vectors[i];
+                for (var i = 0; i < batch.Length; i++) VectorsByText[batch[i]] = vectors[i];
             }
-            return new Dictionary<string, float[]>(s_vectors, StringComparer.Ordinal);
+            return new Dictionary<string, float[]>(VectorsByText, StringComparer.Ordinal);
         }
     }
 
@@ -74,12 +75,15 @@ public static class HitCorpusMeasure
         }).ToList();
     }
 
+    /// <summary>The verdict's metric label, or "serve".</summary>
+    public static string Label(AnchorVerdict verdict) => verdict.Reason is { } reason ? LabelValue.Of(reason) : "serve";
+
     /// <summary>Tab-separated, one pair a line: for reading the dev part's misses in a spreadsheet or with awk.</summary>
     public static void Dump(IEnumerable<MeasuredPair> measured, string path)
     {
         var text = new StringBuilder("part\tid\tfamily\tlabel\tsimilarity\ttoday\tdecision\tdetail\tcached\tasked\n");
         foreach (var m in measured)
-            text.Append($"{m.Pair.Part}\t{m.Pair.Id}\t{m.Pair.Family}\t{m.Pair.Label}\t{m.Similarity:F3}\t{m.Today.Reason ?? "serve"}\t{m.Decision.Reason ?? "serve"}\t{m.Decision.Detail}\t{m.Pair.Cached}\t{m.Pair.Asked}\n");
+            text.Append($"{m.Pair.Part}\t{m.Pair.Id}\t{m.Pair.Family}\t{m.Pair.Label}\t{m.Similarity:F3}\t{Label(m.Today)}\t{Label(m.Decision)}\t{m.Decision.Detail}\t{m.Pair.Cached}\t{m.Pair.Asked}\n");
         File.WriteAllText(path, text.ToString());
     }
 }

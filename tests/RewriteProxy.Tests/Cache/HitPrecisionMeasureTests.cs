@@ -1,4 +1,5 @@
-using RewriteProxy.Hosting;
+using RewriteProxy.Lanes;
+using RewriteProxy.Telemetry;
 using Xunit.Abstractions;
 
 namespace RewriteProxy.Tests.Cache;
@@ -22,7 +23,7 @@ public sealed class HitPrecisionMeasureTests(ITestOutputHelper output)
     {
         var measured = HitCorpusMeasure.Measure();
         Assert.NotEmpty(measured);
-        var at = OptionsReader.DefaultHitSimilarity;
+        var at = new LaneOptions { Name = "measure", Kind = LaneKind.Draft }.HitSimilarity;
         if (Environment.GetEnvironmentVariable("HIT_DUMP") is { Length: > 0 } dump)
             HitCorpusMeasure.Dump(measured.Where(m => m.Pair.Part == "dev"), dump);
         // Only to explain the final figures, once nothing will change any more (tests/corpus/README.md).
@@ -57,7 +58,7 @@ public sealed class HitPrecisionMeasureTests(ITestOutputHelper output)
                     + $"{Share(near.Count(m => m.ServedByDecision(t)), near.Count)} | {Share(para.Count(m => m.ServedByDecision(t)), para.Count)} |");
             output.WriteLine("");
             output.WriteLine("Refusals of the hit decision at the default, by reason: " + string.Join(", ",
-                rows.Where(m => m.ServedByCosine(at) && !m.Decision.Agree).GroupBy(m => m.Decision.Reason)
+                rows.Where(m => m.ServedByCosine(at) && !m.Decision.Agree).GroupBy(m => HitCorpusMeasure.Label(m.Decision))
                     .OrderByDescending(g => g.Count()).Select(g => $"{g.Key} {g.Count()}")));
             output.WriteLine("");
         }
@@ -77,7 +78,7 @@ public sealed class HitPrecisionMeasureTests(ITestOutputHelper output)
     [Fact]
     public void Decision_serves_no_more_near_misses_and_no_fewer_paraphrases_than_measured()
     {
-        var at = OptionsReader.DefaultHitSimilarity;
+        var at = new LaneOptions { Name = "measure", Kind = LaneKind.Draft }.HitSimilarity;
         foreach (var (part, (maxNear, minPara)) in Measured)
         {
             var rows = HitCorpusMeasure.Measure().Where(m => m.Pair.Part == part).ToList();
@@ -105,7 +106,7 @@ public sealed class HitDecisionTuningTests(ITestOutputHelper output)
     public void Sense_depth_and_hypernyms_on_the_dev_part()
     {
         var guard = new RewriteProxy.Cache.AnchorGuard();
-        var at = OptionsReader.DefaultHitSimilarity;
+        var at = new LaneOptions { Name = "measure", Kind = LaneKind.Draft }.HitSimilarity;
         output.WriteLine($"dev part, HitSimilarity {at:F2}: near-misses served / paraphrases served");
         output.WriteLine("| senses per part of speech | for the other word | hypernyms | near-misses served | paraphrases served |");
         output.WriteLine("| --- | --- | --- | --- | --- |");

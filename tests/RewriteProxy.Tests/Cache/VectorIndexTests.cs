@@ -6,7 +6,8 @@ namespace RewriteProxy.Tests.Cache;
 
 public class VectorIndexTests
 {
-    private const int Dims = VectorIndex.DefaultDimensions;
+    /// <summary>The width of all-MiniLM-L6-v2, the shipped model.</summary>
+    private const int Dims = 384;
     private const string WaterScope = "draft|water-utility-model|fp-leak-reports|t0|partition-a";
     private const string BikeScope = "siblings|bike-share-model|fp-handbook|t0|partition-b";
 
@@ -24,7 +25,7 @@ public class VectorIndexTests
     public void Exact_search_equals_a_brute_force_cosine_reference()
     {
         var rows = VectorIndexTestData.Units(800, Dims, seed: 1);
-        using var index = new VectorIndex(switchSize: 10_000);
+        using var index = new VectorIndex(Dims, switchSize: 10_000);
         for (var i = 0; i < rows.Length; i++) index.Add(WaterScope, i, rows[i]);
         var random = new Random(2);
 
@@ -49,7 +50,7 @@ public class VectorIndexTests
     public void Scopes_never_mix_even_with_identical_vectors(int switchSize)
     {
         var rows = VectorIndexTestData.Units(300, Dims, seed: 3);
-        using var index = new VectorIndex(switchSize);
+        using var index = new VectorIndex(Dims, switchSize);
         for (var i = 0; i < rows.Length; i++)
         {
             index.Add(WaterScope, i, rows[i]);
@@ -75,7 +76,7 @@ public class VectorIndexTests
     public void Removed_entries_are_never_returned(int switchSize, bool graph)
     {
         var rows = VectorIndexTestData.Clustered(600, 20, Dims, seed: 4);
-        using var index = new VectorIndex(switchSize);
+        using var index = new VectorIndex(Dims, switchSize);
         index.Load(rows.Select((v, i) => (WaterScope, (long)i, v)));
         Assert.Equal(graph, index.UsesGraph(WaterScope));
 
@@ -98,7 +99,7 @@ public class VectorIndexTests
     public void Every_id_stays_findable_when_a_scope_crosses_the_switch_size()
     {
         var rows = VectorIndexTestData.Clustered(TestSwitchSize + 50, 10, Dims, seed: 5);
-        using var index = new VectorIndex(TestSwitchSize);
+        using var index = new VectorIndex(Dims, TestSwitchSize);
         for (var i = 0; i < TestSwitchSize - 1; i++) index.Add(BikeScope, i, rows[i]);
         Assert.False(index.UsesGraph(BikeScope));
 
@@ -116,7 +117,7 @@ public class VectorIndexTests
     public void Shrinking_below_half_the_switch_size_returns_to_exact_search_and_keeps_the_rest()
     {
         var rows = VectorIndexTestData.Clustered(TestSwitchSize, 10, Dims, seed: 6);
-        using var index = new VectorIndex(TestSwitchSize);
+        using var index = new VectorIndex(Dims, TestSwitchSize);
         index.Load(rows.Select((v, i) => (BikeScope, (long)i, v)));
         Assert.True(index.UsesGraph(BikeScope));
 
@@ -138,7 +139,7 @@ public class VectorIndexTests
         var side = new float[Dims];
         side[1] = 1;
         float[] cosines = [0.99f, 0.95f, 0.91f, 0.85f, 0.6f, 0.1f];
-        using var index = new VectorIndex(switchSize);
+        using var index = new VectorIndex(Dims, switchSize);
         for (var i = 0; i < cosines.Length; i++) index.Add(WaterScope, i, VectorIndexTestData.AtCosine(axis, side, cosines[i]));
         // Filler far from the axis so the graph variant really has a graph.
         for (var i = 0; i < TestSwitchSize; i++)
@@ -161,7 +162,7 @@ public class VectorIndexTests
     public void Adding_an_existing_id_replaces_its_vector_and_scope()
     {
         var rows = VectorIndexTestData.Units(2, Dims, seed: 8);
-        using var index = new VectorIndex();
+        using var index = new VectorIndex(Dims);
         index.Add(WaterScope, 42, rows[0]);
         index.Add(BikeScope, 42, rows[1]);
 
@@ -175,7 +176,7 @@ public class VectorIndexTests
     public void Clear_empties_every_scope()
     {
         var rows = VectorIndexTestData.Units(TestSwitchSize + 10, Dims, seed: 9);
-        using var index = new VectorIndex(TestSwitchSize);
+        using var index = new VectorIndex(Dims, TestSwitchSize);
         index.Load(rows.Select((v, i) => (i % 2 == 0 ? WaterScope : BikeScope, (long)i, v)));
         index.Load(rows.Take(5).Select((v, i) => ("siblings|third", 5_000L + i, v)));
         Assert.Equal(rows.Length + 5, index.Count);
@@ -195,7 +196,7 @@ public class VectorIndexTests
         const int switchSize = 120;
         const int writerOps = 1_500;
         var rows = VectorIndexTestData.Clustered(writerOps * 2, 15, Dims, seed: 10);
-        using var index = new VectorIndex(switchSize);
+        using var index = new VectorIndex(Dims, switchSize);
         var removedAt = new ConcurrentDictionary<long, long>();
         long sequence = 0;
         var failures = new ConcurrentQueue<string>();
@@ -269,7 +270,7 @@ public class VectorIndexTests
     public void Graph_recall_at_1_is_at_least_0_99_on_20k_clustered_entries()
     {
         var rows = VectorIndexTestData.Clustered(20_000, 80, Dims, seed: 11);
-        using var index = new VectorIndex(switchSize: 1_000);
+        using var index = new VectorIndex(Dims, switchSize: 1_000);
         index.Load(rows.Select((v, i) => (BikeScope, (long)i, v)));
         Assert.True(index.UsesGraph(BikeScope));
         var random = new Random(12);

@@ -21,13 +21,10 @@ public sealed class DemoTests
 {
     const int SmallRun = 60;
 
-    /// <summary>The configuration file the product ships, found from the test's folder up to the repository root.</summary>
+    /// <summary>The configuration file the product ships.</summary>
     static Microsoft.Extensions.Configuration.IConfigurationRoot ShippedConfiguration()
     {
-        var dir = new DirectoryInfo(AppContext.BaseDirectory);
-        while (dir is not null && !File.Exists(Path.Combine(dir.FullName, "RewriteProxy.sln"))) dir = dir.Parent;
-        Assert.NotNull(dir);
-        return ConfigurationLoader.Load(Path.Combine(dir.FullName, ConfigurationLoader.DefaultFile), []);
+        return ConfigurationLoader.Load(RepositoryRoot.File(ConfigurationLoader.DefaultFile), []);
     }
 
     static async Task<Dictionary<(string Lane, string Result), double>> LookupsInRegistryAsync()
@@ -35,7 +32,7 @@ public sealed class DemoTests
         // prometheus-net's own exporter, not the demo's scrape of /metrics: a second reading of the same counters.
         using var buffer = new MemoryStream();
         await Metrics.DefaultRegistry.CollectAndExportAsTextAsync(buffer);
-        var snapshot = MetricsSnapshot.Parse(Encoding.UTF8.GetString(buffer.ToArray()));
+        var snapshot = MetricsExposition.Parse(Encoding.UTF8.GetString(buffer.ToArray()));
         var found = new Dictionary<(string, string), double>();
         foreach (var lane in DemoWorkload.Lanes)
             foreach (var (result, value) in snapshot.SumBy("rewriteproxy_lookups_total", "result", ("lane", lane)))

@@ -1,3 +1,4 @@
+using RewriteProxy.Lanes;
 using RewriteProxy.Cli;
 using RewriteProxy.Cli.Reports;
 using RewriteProxy.Hosting;

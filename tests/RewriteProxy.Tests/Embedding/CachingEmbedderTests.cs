@@ -83,11 +83,11 @@ public sealed class CachingEmbedderTests
     /// <summary>A stand-in inner embedder that counts what it is asked; its vectors are a fixed function of the text.</summary>
     sealed class CountingEmbedder : IEmbedder
     {
-        int texts;
-        int batches;
+        int _texts;
+        int _batches;
 
-        public int TextsEmbedded => Volatile.Read(ref texts);
-        public int BatchCalls => Volatile.Read(ref batches);
+        public int TextsEmbedded => Volatile.Read(ref _texts);
+        public int BatchCalls => Volatile.Read(ref _batches);
         public string ModelId => "counting";
         public int Dimension => 4;
 
@@ -95,15 +95,15 @@ public sealed class CachingEmbedderTests
 
         public float[] Embed(string text)
         {
-            Interlocked.Increment(ref texts);
-            Interlocked.Increment(ref batches);
+            Interlocked.Increment(ref _texts);
+            Interlocked.Increment(ref _batches);
             return VectorOf(text);
         }
 
         public float[][] Embed(IReadOnlyList<string> list)
         {
-            Interlocked.Add(ref texts, list.Count);
-            Interlocked.Increment(ref batches);
+            Interlocked.Add(ref _texts, list.Count);
+            Interlocked.Increment(ref _batches);
             return list.Select(VectorOf).ToArray();
         }
     }

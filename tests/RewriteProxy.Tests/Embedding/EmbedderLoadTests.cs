@@ -5,12 +5,12 @@ namespace RewriteProxy.Tests.Embedding;
 
 public sealed class EmbedderLoadTests : IDisposable
 {
-    readonly string folder = Directory.CreateTempSubdirectory("embedder-load-").FullName;
+    readonly string _folder = Directory.CreateTempSubdirectory("embedder-load-").FullName;
 
     [Fact]
     public void Missing_model_file_is_one_clear_load_error_naming_the_path()
     {
-        string model = Path.Combine(folder, "absent.onnx");
+        string model = Path.Combine(_folder, "absent.onnx");
         string vocabulary = WriteVocabulary();
 
         var error = Assert.Throws<EmbedderLoadException>(() => OnnxEmbedder.Load(new EmbeddingOptions { ModelPath = model, VocabPath = vocabulary }));
@@ -23,7 +23,7 @@ public sealed class EmbedderLoadTests : IDisposable
     [Fact]
     public void Model_path_without_vocabulary_path_is_a_load_error()
     {
-        string model = Path.Combine(folder, "model.onnx");
+        string model = Path.Combine(_folder, "model.onnx");
         File.WriteAllBytes(model, [1, 2, 3]);
 
         var error = Assert.Throws<EmbedderLoadException>(() => OnnxEmbedder.Load(new EmbeddingOptions { ModelPath = model }));
@@ -35,7 +35,7 @@ public sealed class EmbedderLoadTests : IDisposable
     [Fact]
     public void File_that_is_not_onnx_is_one_clear_load_error()
     {
-        string model = Path.Combine(folder, "notes.onnx");
+        string model = Path.Combine(_folder, "notes.onnx");
         File.WriteAllText(model, "This is a text file about the Riverton water utility, not a model.");
 
         var error = Assert.Throws<EmbedderLoadException>(() => OnnxEmbedder.Load(new EmbeddingOptions { ModelPath = model, VocabPath = WriteVocabulary() }));
@@ -50,7 +50,7 @@ public sealed class EmbedderLoadTests : IDisposable
     [Fact]
     public void Onnx_model_without_bert_inputs_is_a_load_error_naming_what_is_missing()
     {
-        string model = Path.Combine(folder, "identity.onnx");
+        string model = Path.Combine(_folder, "identity.onnx");
         File.WriteAllBytes(model, TinyOnnxModel.Identity("pixels", "scores"));
 
         var error = Assert.Throws<EmbedderLoadException>(() => OnnxEmbedder.Load(new EmbeddingOptions { ModelPath = model, VocabPath = WriteVocabulary() }));
@@ -63,7 +63,7 @@ public sealed class EmbedderLoadTests : IDisposable
     [Fact]
     public void Bert_inputs_with_an_output_of_the_wrong_rank_is_a_load_error()
     {
-        string model = Path.Combine(folder, "flat.onnx");
+        string model = Path.Combine(_folder, "flat.onnx");
         File.WriteAllBytes(model, TinyOnnxModel.IdsToFloatMatrix());
 
         var error = Assert.Throws<EmbedderLoadException>(() => OnnxEmbedder.Load(new EmbeddingOptions { ModelPath = model, VocabPath = WriteVocabulary() }));
@@ -74,10 +74,10 @@ public sealed class EmbedderLoadTests : IDisposable
 
     string WriteVocabulary()
     {
-        string path = Path.Combine(folder, "vocab.txt");
+        string path = Path.Combine(_folder, "vocab.txt");
         File.WriteAllLines(path, ["[PAD]", "[UNK]", "[CLS]", "[SEP]", "[MASK]", "water", "meter"]);
         return path;
     }
 
-    public void Dispose() => Directory.Delete(folder, recursive: true);
+    public void Dispose() => Directory.Delete(_folder, recursive: true);
 }

@@ -25,6 +25,27 @@ internal static class TinyOnnxModel
             [ValueInfo("input_ids", Int64, "batch", "tokens"), ValueInfo("attention_mask", Int64, "batch", "tokens")],
             [ValueInfo("embedding", Float, "batch", "tokens")]));
 
+    /// <summary>
+    /// A sentence model of any width: BERT's inputs, and a hidden state that is each word piece's row of a fixed random
+    /// table (a Gather), so texts that share most of their word pieces get close mean-pooled vectors.
+    /// </summary>
+    /// <param name="vocabularySize">Rows of the table: the size of the vocabulary used with it.</param>
+    /// <param name="width">Length of every vector.</param>
+    /// <param name="seed">Seed of the table.</param>
+    public static byte[] SentenceModel(int vocabularySize, int width, int seed = 7)
+    {
+        var random = new Random(seed);
+        var table = new byte[vocabularySize * width * sizeof(float)];
+        for (var i = 0; i < vocabularySize * width; i++)
+            BitConverter.TryWriteBytes(table.AsSpan(i * sizeof(float)), (float)(random.NextDouble() * 2 - 1));
+        var initializer = new Proto().Varint(1, (ulong)vocabularySize).Varint(1, (ulong)width).Varint(2, Float).Text(8, "table").Bytes(9, table);
+        return Model(Graph(
+            Node("Gather", ["table", "input_ids"], ["last_hidden_state"], []),
+            [ValueInfo("input_ids", Int64, "batch", "tokens"), ValueInfo("attention_mask", Int64, "batch", "tokens")],
+            [ValueInfo("last_hidden_state", Float, "batch", "tokens", width)],
+            [initializer.ToArray()]));
+    }
+
     static byte[] Model(byte[] graph)
     {
         var model = new Proto();
@@ -34,11 +55,13 @@ internal static class TinyOnnxModel
         return model.ToArray();
     }
 
-    static byte[] Graph(byte[] node, byte[][] inputs, byte[][] outputs)
+    static byte[] Graph(byte[] node, byte[][] inputs, byte[][] outputs, byte[][]? initializers = null)
     {
         var graph = new Proto();
         graph.Bytes(1, node);
         graph.Text(2, "tiny");
+        foreach (byte[] initializer in initializers ?? [])
+            graph.Bytes(5, initializer);
         foreach (byte[] input in inputs)
             graph.Bytes(11, input);
         foreach (byte[] output in outputs)
@@ -78,7 +101,7 @@ internal static class TinyOnnxModel
     /// <summary>Protocol Buffers wire format: varint (type 0) and length-delimited (type 2) fields only.</summary>
     sealed class Proto
     {
-        readonly MemoryStream bytes = new();
+        readonly MemoryStream _bytes = new();
 
         public Proto Varint(int field, ulong value)
         {
@@ -91,22 +114,22 @@ internal static class TinyOnnxModel
         {
             Raw((ulong)(field << 3 | 2));
             Raw((ulong)value.Length);
-            bytes.Write(value);
+            _bytes.Write(value);
             return this;
         }
 
         public Proto Text(int field, string value) => Bytes(field, Encoding.UTF8.GetBytes(value));
 
-        public byte[] ToArray() => bytes.ToArray();
+        public byte[] ToArray() => _bytes.ToArray();
 
         void Raw(ulong value)
         {
             while (value >= 0x80)
             {
-                bytes.WriteByte((byte)(value | 0x80));
+                _bytes.WriteByte((byte)(value | 0x80));
                 value >>= 7;
             }
-            bytes.WriteByte((byte)value);
+            _bytes.WriteByte((byte)value);
         }
     }
 }

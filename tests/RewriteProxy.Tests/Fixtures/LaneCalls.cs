@@ -46,12 +46,21 @@ public static class LaneCalls
         return body;
     }
 
+    /// <summary>One question to a lane, as the only user message.</summary>
+    public static Task<LaneReply> AskAsync(this HttpClient client, string lane, string question, string? credential = "sk-tenant-a",
+        bool stream = false, string? cacheControl = null) =>
+        client.PostLaneAsync(lane, Request(question, stream: stream), credential, cacheControl);
+
     public static Task<LaneReply> AskAsync(this TestProxy proxy, string lane, string question, string? credential = "sk-tenant-a",
         bool stream = false, string? cacheControl = null) =>
-        proxy.PostLaneAsync(lane, Request(question, stream: stream), credential, cacheControl);
+        proxy.Client.AskAsync(lane, question, credential, stream, cacheControl);
 
-    public static async Task<LaneReply> PostLaneAsync(this TestProxy proxy, string lane, JsonObject body, string? credential = "sk-tenant-a",
-        string? cacheControl = null, bool viaHeader = false)
+    /// <summary>
+    /// A lane call over any client (the in-process proxy's or a child process's): to <c>/lane/{lane}/v1/chat/completions</c>,
+    /// or with <paramref name="viaHeader"/> to <c>/v1/chat/completions</c> with <c>X-Rewrite-Lane</c>.
+    /// </summary>
+    public static async Task<LaneReply> PostLaneAsync(this HttpClient client, string lane, JsonObject body, string? credential = "sk-tenant-a",
+        string? cacheControl = null, bool viaHeader = false, CancellationToken cancel = default)
     {
         using var request = new HttpRequestMessage(HttpMethod.Post, viaHeader ? "/v1/chat/completions" : $"/lane/{lane}/v1/chat/completions")
         {
@@ -60,7 +69,7 @@ public static class LaneCalls
         if (viaHeader) request.Headers.Add("X-Rewrite-Lane", lane);
         if (credential is not null) request.Headers.Authorization = new AuthenticationHeaderValue("Bearer", credential);
         if (cacheControl is not null) request.Headers.TryAddWithoutValidation("Cache-Control", cacheControl);
-        var response = await proxy.Client.SendAsync(request);
-        return new LaneReply(response, await response.Content.ReadAsStringAsync());
+        var response = await client.SendAsync(request, cancel);
+        return new LaneReply(response, await response.Content.ReadAsStringAsync(cancel));
     }
 }

@@ -1,7 +1,6 @@
 using System.Diagnostics;
 using System.Globalization;
 using System.Net;
-using System.Net.Sockets;
 using System.Text;
 using System.Text.Json;
 
@@ -24,20 +23,8 @@ public static class PromTools
 
     public static string PrometheusPath => Find("prometheus");
 
-    /// <summary>The folder holding RewriteProxy.sln, found by walking up from the test binaries.</summary>
-    public static string RepositoryRoot
-    {
-        get
-        {
-            for (var dir = new DirectoryInfo(AppContext.BaseDirectory); dir is not null; dir = dir.Parent)
-                if (File.Exists(Path.Combine(dir.FullName, "RewriteProxy.sln")))
-                    return dir.FullName;
-            throw new InvalidOperationException($"No RewriteProxy.sln above {AppContext.BaseDirectory}.");
-        }
-    }
-
     /// <summary>config/prometheus: the rule files, their promtool tests and the example scrape config.</summary>
-    public static string PrometheusConfigDirectory => Path.Combine(RepositoryRoot, "config", "prometheus");
+    public static string PrometheusConfigDirectory => RepositoryRoot.File("config", "prometheus");
 
     static string Find(string name)
     {
@@ -58,13 +45,8 @@ public static class PromTools
     /// <exception cref="TimeoutException">The tool ran longer than <paramref name="timeout"/>; it is killed.</exception>
     public static (int Exit, string Output) Run(string exe, TimeSpan timeout, params string[] args)
     {
-        using var process = new Process { StartInfo = StartInfo(exe, args) };
         var output = new StringBuilder();
-        process.OutputDataReceived += (_, e) => Append(output, e.Data);
-        process.ErrorDataReceived += (_, e) => Append(output, e.Data);
-        process.Start();
-        process.BeginOutputReadLine();
-        process.BeginErrorReadLine();
+        using var process = StartLogged(StartInfo(exe, args), output);
         if (!process.WaitForExit(timeout))
         {
             process.Kill(entireProcessTree: true);
@@ -87,6 +69,18 @@ public static class PromTools
         foreach (var arg in args)
             info.ArgumentList.Add(arg);
         return info;
+    }
+
+    /// <summary>Starts a process with stdout and stderr collected, interleaved as they come, into <paramref name="log"/>.</summary>
+    internal static Process StartLogged(ProcessStartInfo info, StringBuilder log)
+    {
+        var process = new Process { StartInfo = info };
+        process.OutputDataReceived += (_, e) => Append(log, e.Data);
+        process.ErrorDataReceived += (_, e) => Append(log, e.Data);
+        process.Start();
+        process.BeginOutputReadLine();
+        process.BeginErrorReadLine();
+        return process;
     }
 
     internal static void Append(StringBuilder output, string? line)
@@ -113,9 +107,6 @@ public sealed class PrometheusServer : IAsyncDisposable
 
     static readonly TimeSpan ReadyTimeout = TimeSpan.FromSeconds(20);
     static readonly TimeSpan PollDelay = TimeSpan.FromMilliseconds(200);
-
-    /// <summary>Tries with another port when the one picked was taken between probing and binding.</summary>
-    const int PortAttempts = 3;
 
     readonly Process _process;
     readonly StringBuilder _log;
@@ -145,28 +136,11 @@ public sealed class PrometheusServer : IAsyncDisposable
     {
         var exe = PromTools.PrometheusPath;
         var rules = (ruleFiles ?? []).Select(Path.GetFullPath).ToArray();
-        Exception? last = null;
-        for (var attempt = 0; attempt < PortAttempts; attempt++)
-        {
-            var directory = Directory.CreateTempSubdirectory("rewriteproxy-prom-").FullName;
-            var server = Launch(exe, directory, FreeLoopbackPort(), scrapeTarget, rules);
-            try
-            {
-                await server.WaitUntilReadyAsync(cancellationToken);
-                return server;
-            }
-            catch (InvalidOperationException e) when (!cancellationToken.IsCancellationRequested)
-            {
-                last = e;
-                await server.DisposeAsync();
-            }
-            catch
-            {
-                await server.DisposeAsync();
-                throw;
-            }
-        }
-        throw new InvalidOperationException($"prometheus did not start in {PortAttempts} attempts.", last);
+        return await LoopbackPort.StartAsync(
+            port => Launch(exe, Directory.CreateTempSubdirectory("rewriteproxy-prom-").FullName, port, scrapeTarget, rules),
+            server => server.WaitUntilReadyAsync(cancellationToken),
+            e => e is InvalidOperationException && !cancellationToken.IsCancellationRequested,
+            "prometheus");
     }
 
     static PrometheusServer Launch(string exe, string directory, int port, string scrapeTarget, string[] rules)
@@ -174,21 +148,13 @@ public sealed class PrometheusServer : IAsyncDisposable
         var config = Path.Combine(directory, "prometheus.yml");
         File.WriteAllText(config, ConfigYaml(scrapeTarget, rules));
         var listen = $"127.0.0.1:{port}";
-        var process = new Process
-        {
-            StartInfo = PromTools.StartInfo(exe,
+        var log = new StringBuilder();
+        var process = PromTools.StartLogged(PromTools.StartInfo(exe,
             [
                 $"--config.file={config}",
                 $"--storage.tsdb.path={Path.Combine(directory, "data")}",
                 $"--web.listen-address={listen}",
-            ], directory),
-        };
-        var log = new StringBuilder();
-        process.OutputDataReceived += (_, e) => PromTools.Append(log, e.Data);
-        process.ErrorDataReceived += (_, e) => PromTools.Append(log, e.Data);
-        process.Start();
-        process.BeginOutputReadLine();
-        process.BeginErrorReadLine();
+            ], directory), log);
         return new PrometheusServer(process, log, directory, new Uri($"http://{listen}/"));
     }
 
@@ -208,13 +174,6 @@ public sealed class PrometheusServer : IAsyncDisposable
         yaml.AppendLine("    static_configs:");
         yaml.AppendLine($"      - targets: [{JsonSerializer.Serialize(scrapeTarget)}]");
         return yaml.ToString();
-    }
-
-    static int FreeLoopbackPort()
-    {
-        using var probe = new TcpListener(IPAddress.Loopback, 0);
-        probe.Start();
-        return ((IPEndPoint)probe.LocalEndpoint).Port;
     }
 
     async Task WaitUntilReadyAsync(CancellationToken cancellationToken)

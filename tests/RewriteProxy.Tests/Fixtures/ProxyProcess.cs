@@ -1,6 +1,5 @@
 using System.Diagnostics;
 using System.Net;
-using System.Net.Sockets;
 using System.Text;
 
 namespace RewriteProxy.Tests.Fixtures;
@@ -16,8 +15,6 @@ public sealed class ProxyProcess : IAsyncDisposable
     /// <summary>Model load plus store open on a busy two-core machine; the real start takes a few seconds.</summary>
     static readonly TimeSpan ReadyTimeout = TimeSpan.FromSeconds(90);
     static readonly TimeSpan PollDelay = TimeSpan.FromMilliseconds(100);
-    /// <summary>Tries with another port when the one probed was taken before the child bound it.</summary>
-    const int PortAttempts = 3;
     /// <summary>Exit code of `serve` when it cannot listen (proxy/Cli/ServeCommand.cs ExitCodes.CannotListen).</summary>
     const int CannotListen = 3;
 
@@ -52,27 +49,11 @@ public sealed class ProxyProcess : IAsyncDisposable
     /// <param name="settings">configuration overrides, passed as <c>--Key=value</c> (the documented last source).</param>
     public static async Task<ProxyProcess> StartAsync(Uri upstream, string storePath, IDictionary<string, string>? settings = null)
     {
-        Exception? last = null;
-        for (var attempt = 0; attempt < PortAttempts; attempt++)
-        {
-            var proxy = Launch(upstream, storePath, settings, FreeLoopbackPort());
-            try
-            {
-                await proxy.WaitUntilReadyAsync();
-                return proxy;
-            }
-            catch (PortTakenException e)
-            {
-                last = e;
-                await proxy.DisposeAsync();
-            }
-            catch
-            {
-                await proxy.DisposeAsync();
-                throw;
-            }
-        }
-        throw new InvalidOperationException($"the proxy did not start in {PortAttempts} attempts", last);
+        return await LoopbackPort.StartAsync(
+            port => Launch(upstream, storePath, settings, port),
+            proxy => proxy.WaitUntilReadyAsync(),
+            e => e is PortTakenException,
+            "the proxy");
     }
 
     static ProxyProcess Launch(Uri upstream, string storePath, IDictionary<string, string>? settings, int port)
@@ -86,13 +67,8 @@ public sealed class ProxyProcess : IAsyncDisposable
         foreach (var (k, v) in settings ?? new Dictionary<string, string>()) args.Add($"--{k}={v}");
         // Not the repository root: the config file beside the binary is the one read, as in a deployment.
         var workingDirectory = Directory.CreateTempSubdirectory("rewriteproxy-proc-").FullName;
-        var process = new Process { StartInfo = PromTools.StartInfo(DotnetHost(), args, workingDirectory) };
         var log = new StringBuilder();
-        process.OutputDataReceived += (_, e) => PromTools.Append(log, e.Data);
-        process.ErrorDataReceived += (_, e) => PromTools.Append(log, e.Data);
-        process.Start();
-        process.BeginOutputReadLine();
-        process.BeginErrorReadLine();
+        var process = PromTools.StartLogged(PromTools.StartInfo(DotnetHost(), args, workingDirectory), log);
         return new ProxyProcess(process, log, root, storePath, workingDirectory);
     }
 
@@ -146,13 +122,6 @@ public sealed class ProxyProcess : IAsyncDisposable
         Client.Dispose();
         await ChildProcess.StopAsync(_process);
         try { Directory.Delete(_workingDirectory, recursive: true); } catch (IOException) { }
-    }
-
-    static int FreeLoopbackPort()
-    {
-        using var probe = new TcpListener(IPAddress.Loopback, 0);
-        probe.Start();
-        return ((IPEndPoint)probe.LocalEndpoint).Port;
     }
 
     sealed class PortTakenException(string log) : Exception("the probed port was taken:\n" + log);

@@ -171,6 +171,9 @@ public sealed class ScriptedUpstream : IAsyncDisposable
         return pieces;
     }
 
+    /// <summary>A draft that repeats the question: on topic for the drift guard, and tells which question it answers.</summary>
+    public static string DraftAnswer(JsonNode request) => "A draft answer: " + LastUserText(request);
+
     public static string LastUserText(JsonNode request)
     {
         var messages = request["messages"]!.AsArray();

@@ -150,7 +150,7 @@ public sealed class PassthroughTests : UpstreamAndProxy
     [Fact]
     public async Task Unreachable_upstream_gives_502_with_an_openai_shaped_error()
     {
-        var port = FreePort();
+        var port = LoopbackPort.Free();
         await using var proxy = await TestProxy.StartAsync(new Uri($"http://127.0.0.1:{port}/v1"));
         using var response = await proxy.Client.GetAsync("/v1/models");
 
@@ -193,14 +193,5 @@ public sealed class PassthroughTests : UpstreamAndProxy
         var seen = Upstream.Requests.Single();
         Assert.Equal("/v1/models", seen.Path);
         Assert.Equal(Upstream.Root.Authority, seen.Headers["Host"]);
-    }
-
-    static int FreePort()
-    {
-        var listener = new System.Net.Sockets.TcpListener(IPAddress.Loopback, 0);
-        listener.Start();
-        var port = ((IPEndPoint)listener.LocalEndpoint).Port;
-        listener.Stop();
-        return port;
     }
 }

@@ -1,3 +1,4 @@
+using RewriteProxy.Lanes;
 using RewriteProxy.Guard;
 using RewriteProxy.Hosting;
 
@@ -16,7 +17,7 @@ public sealed class DraftGuardTests
     public void Draft_within_max_drift_is_accepted_with_its_drift()
     {
         var v = DraftGuard.Judge(Question, At(0.7), "A draft.", Lane());
-        Assert.Equal(("A draft.", true, (string?)null), (v.Text, v.Accepted, v.Reason));
+        Assert.Equal(("A draft.", true, (DropReason?)null), (v.Text, v.Accepted, v.Reason));
         Assert.Equal(0.3, v.Drift, 6);
     }
 
@@ -30,7 +31,7 @@ public sealed class DraftGuardTests
     public void Draft_beyond_max_drift_is_refused_for_drift()
     {
         var v = DraftGuard.Judge(Question, At(0.3), "Off topic.", Lane());
-        Assert.Equal((false, "drift"), (v.Accepted, v.Reason));
+        Assert.Equal((false, DropReason.Drift), (v.Accepted, v.Reason));
     }
 
     public static TheoryData<OnDrift, int, int, DraftDecision> Decisions => new()
@@ -67,7 +68,7 @@ public sealed class DraftGuardTests
     {
         var lane = Lane(OnDrift.Reject, mode: GuardMode.Observe);
         var drifted = DraftGuard.Judge(Question, At(0.1), "Off topic.", lane);
-        Assert.Equal("drift", drifted.Reason);
+        Assert.Equal(DropReason.Drift, drifted.Reason);
         Assert.Equal(DraftDecision.Accept, DraftGuard.Decide(drifted, 1, lane));
     }
 

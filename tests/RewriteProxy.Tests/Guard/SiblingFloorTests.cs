@@ -1,3 +1,4 @@
+using RewriteProxy.Lanes;
 using RewriteProxy.Guard;
 using RewriteProxy.Hosting;
 
@@ -31,7 +32,7 @@ public sealed class SiblingFloorTests
 
         var judged = SiblingGuard.Judge(question, texts, [near1, near2, far], "", Lane(2));
         Assert.Equal(["near one", "near two"], judged.Kept.Select(k => k.Text));
-        Assert.Equal("surplus", Assert.Single(judged.Dropped).Reason);
+        Assert.Equal(DropReason.Surplus, Assert.Single(judged.Dropped).Reason);
     }
 
     [Fact]

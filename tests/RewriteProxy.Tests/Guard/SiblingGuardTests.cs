@@ -1,3 +1,4 @@
+using RewriteProxy.Lanes;
 using RewriteProxy.Guard;
 using RewriteProxy.Hosting;
 
@@ -42,7 +43,7 @@ public sealed class SiblingGuardTests(ReferenceEncoder encoder) : IClassFixture<
         var j = SiblingGuard.Judge(Question, ["near", "far"], [At(0.8, 1), At(0.4, 2)], "near\nfar", Lane(maxDrift: 0.5));
         Assert.Equal(["near"], j.Kept.Select(k => k.Text));
         var far = Assert.Single(j.Dropped);
-        Assert.Equal(("far", false, "drift"), (far.Text, far.Accepted, far.Reason));
+        Assert.Equal(("far", false, DropReason.Drift), (far.Text, far.Accepted, far.Reason));
         Assert.Equal(0.6, far.Drift, 6);
     }
 
@@ -57,7 +58,7 @@ public sealed class SiblingGuardTests(ReferenceEncoder encoder) : IClassFixture<
     public void Sibling_that_repeats_the_question_is_dropped_as_echo()
     {
         var j = SiblingGuard.Judge(Question, ["same", "other"], [At(0.99, 1), At(0.8, 2)], "", Lane(minSpread: 0.05));
-        Assert.Equal("echo", Assert.Single(j.Dropped, d => d.Text == "same").Reason);
+        Assert.Equal(DropReason.Echo, Assert.Single(j.Dropped, d => d.Text == "same").Reason);
         Assert.Equal(["other"], j.Kept.Select(k => k.Text));
     }
 
@@ -70,7 +71,7 @@ public sealed class SiblingGuardTests(ReferenceEncoder encoder) : IClassFixture<
         var j = SiblingGuard.Judge(Question, ["a", "b"], [a, b], "", Lane());
         Assert.True(1 - SiblingGuard.Cosine(a, b) < 0.05);
         Assert.Equal(["a"], j.Kept.Select(k => k.Text));
-        Assert.Equal(("b", "duplicate"), (j.Dropped.Single().Text, j.Dropped.Single().Reason));
+        Assert.Equal(("b", DropReason.Duplicate), (j.Dropped.Single().Text, j.Dropped.Single().Reason));
     }
 
     [Fact]
@@ -80,7 +81,7 @@ public sealed class SiblingGuardTests(ReferenceEncoder encoder) : IClassFixture<
         var vectors = new[] { At(0.9, 1), At(0.85, 2), At(0.8, 3) };
         var j = SiblingGuard.Judge(Question, texts, vectors, "", Lane(maxSiblings: 2));
         Assert.Equal(2, j.Kept.Count);
-        Assert.Equal(("s3", "surplus"), (j.Dropped.Single().Text, j.Dropped.Single().Reason));
+        Assert.Equal(("s3", DropReason.Surplus), (j.Dropped.Single().Text, j.Dropped.Single().Reason));
     }
 
     [Fact]
@@ -152,7 +153,7 @@ public sealed class SiblingGuardTests(ReferenceEncoder encoder) : IClassFixture<
         Assert.Equal(completion, observe.Content);
         Assert.Equal(enforce.Kept, observe.Kept);
         Assert.Equal(enforce.Dropped, observe.Dropped);
-        Assert.Equal("drift", observe.Dropped.Single().Reason);
+        Assert.Equal(DropReason.Drift, observe.Dropped.Single().Reason);
     }
 
     [Fact]
@@ -160,7 +161,7 @@ public sealed class SiblingGuardTests(ReferenceEncoder encoder) : IClassFixture<
     {
         // IEmbedder gives the zero vector for blank text: cosine 0, drift 1.
         var j = SiblingGuard.Judge(Question, [" "], [new float[4]], " ", Lane());
-        Assert.Equal("drift", j.Dropped.Single().Reason);
+        Assert.Equal(DropReason.Drift, j.Dropped.Single().Reason);
     }
 
     [Fact]

@@ -1,3 +1,4 @@
+using RewriteProxy.Lanes;
 using RewriteProxy.Guard;
 using RewriteProxy.Hosting;
 using RewriteProxy.Tests.Corpus;
@@ -18,7 +19,7 @@ public sealed class SiblingSetMeasureTests(ITestOutputHelper output)
 {
     static readonly LaneOptions Lane = new()
     {
-        Name = "siblings", Kind = LaneKind.Siblings, MaxDrift = OptionsReader.DefaultSiblingMaxDrift, MinSpread = DriftDefaults.MinSpread,
+        Name = "siblings", Kind = LaneKind.Siblings, MaxDrift = DriftDefaults.SiblingMaxDrift, MinSpread = DriftDefaults.MinSpread,
         MaxSiblings = 5,
     };
 

@@ -1,3 +1,4 @@
+using RewriteProxy.Lanes;
 using System.Diagnostics;
 using Microsoft.Extensions.Configuration;
 using RewriteProxy.Hosting;
@@ -137,7 +138,7 @@ public sealed class ConfigurationTests
     [InlineData("00:01:40", 100)]
     public void Durations_read_with_a_unit_or_as_a_timespan(string text, double seconds)
     {
-        Assert.True(OptionsReader.TryParseDuration(text, out var value));
+        Assert.True(DurationText.TryParse(text, out var value));
         Assert.Equal(seconds, value.TotalSeconds, 6);
     }
 }

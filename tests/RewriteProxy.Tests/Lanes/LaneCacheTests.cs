@@ -15,7 +15,7 @@ public sealed class LaneCacheTests : UpstreamAndProxy
     protected override void Script(ScriptedUpstream upstream)
     {
         // Drafts answer on topic, so the drift guard keeps them and the cache is what is under test.
-        upstream.Completion = r => "A draft answer: " + ScriptedUpstream.LastUserText(r);
+        upstream.Completion = ScriptedUpstream.DraftAnswer;
     }
 
     [Fact]
@@ -33,8 +33,8 @@ public sealed class LaneCacheTests : UpstreamAndProxy
     [Fact]
     public async Task Lane_can_be_chosen_by_header_on_the_plain_chat_path()
     {
-        var first = await Proxy.PostLaneAsync("draft", LaneCalls.Request("Where do I return a rented kayak?"), viaHeader: true);
-        var second = await Proxy.PostLaneAsync("draft", LaneCalls.Request("Where do I return a rented kayak?"), viaHeader: true);
+        var first = await Proxy.Client.PostLaneAsync("draft", LaneCalls.Request("Where do I return a rented kayak?"), viaHeader: true);
+        var second = await Proxy.Client.PostLaneAsync("draft", LaneCalls.Request("Where do I return a rented kayak?"), viaHeader: true);
 
         Assert.Equal("miss", first.Cache);
         Assert.Equal("hit-exact", second.Cache);
@@ -86,17 +86,17 @@ public sealed class LaneCacheTests : UpstreamAndProxy
     public async Task Different_output_parameters_or_system_prompt_do_not_share_an_entry()
     {
         var q = "When is the recycling centre open?";
-        await Proxy.PostLaneAsync("draft", LaneCalls.Request(q));
+        await Proxy.Client.PostLaneAsync("draft", LaneCalls.Request(q));
         var warmer = LaneCalls.Request(q);
         warmer["temperature"] = 0.7;
         var otherSystem = LaneCalls.Request(q, system: "Answer in French.");
         var otherModel = LaneCalls.Request(q, model: "another-model");
 
-        Assert.Equal("miss", (await Proxy.PostLaneAsync("draft", warmer)).Cache);
-        Assert.Equal("miss", (await Proxy.PostLaneAsync("draft", otherSystem)).Cache);
-        Assert.Equal("miss", (await Proxy.PostLaneAsync("draft", otherModel)).Cache);
+        Assert.Equal("miss", (await Proxy.Client.PostLaneAsync("draft", warmer)).Cache);
+        Assert.Equal("miss", (await Proxy.Client.PostLaneAsync("draft", otherSystem)).Cache);
+        Assert.Equal("miss", (await Proxy.Client.PostLaneAsync("draft", otherModel)).Cache);
         Assert.Equal("miss", (await Proxy.AskAsync("siblings", q)).Cache);
-        Assert.Equal("hit-exact", (await Proxy.PostLaneAsync("draft", LaneCalls.Request(q))).Cache);
+        Assert.Equal("hit-exact", (await Proxy.Client.PostLaneAsync("draft", LaneCalls.Request(q))).Cache);
     }
 
     [Fact]
@@ -165,7 +165,7 @@ public sealed class LaneCacheTests : UpstreamAndProxy
     public async Task A_body_above_the_limit_is_413()
     {
         var big = LaneCalls.Request(new string('x', 2 << 20));
-        var reply = await Proxy.PostLaneAsync("draft", big);
+        var reply = await Proxy.Client.PostLaneAsync("draft", big);
 
         Assert.Equal(413, reply.Status);
         Assert.Equal("request_too_large", (await OpenAiError.ReadAsync(reply.Response)).Code);
@@ -192,8 +192,8 @@ public sealed class LaneCacheTests : UpstreamAndProxy
                 body["n"] = 3;
                 break;
         }
-        var first = await Proxy.PostLaneAsync("draft", body);
-        var second = await Proxy.PostLaneAsync("draft", body);
+        var first = await Proxy.Client.PostLaneAsync("draft", body);
+        var second = await Proxy.Client.PostLaneAsync("draft", body);
 
         Assert.Equal("bypass", first.Cache);
         Assert.Equal("bypass", second.Cache);

@@ -9,13 +9,11 @@ namespace RewriteProxy.Tests.Lanes;
 /// The oracle for "on topic" is an independent cosine (System.Numerics.Tensors.TensorPrimitives.CosineSimilarity)
 /// over the model's vectors, and the labels of Guard/Data/drift-labels.jsonl.
 /// </summary>
-public sealed class LaneDriftTests : IAsyncLifetime
+public sealed class LaneDriftTests : UpstreamAndProxy
 {
-    static readonly DriftLabel Label = DriftLabel.Load().First(l => l.Question == "What happens if I return a bike to a full docking station?");
-    ScriptedUpstream _upstream = null!;
+    protected override bool StartsProxy => false;
 
-    public async Task InitializeAsync() => _upstream = await ScriptedUpstream.StartAsync();
-    public async Task DisposeAsync() => await _upstream.DisposeAsync();
+    static readonly DriftLabel Label = DriftLabel.Load().First(l => l.Question == "What happens if I return a bike to a full docking station?");
 
     static double Drift(string question, string rewrite)
     {
@@ -35,13 +33,13 @@ public sealed class LaneDriftTests : IAsyncLifetime
     {
         var all = new Dictionary<string, string?>();
         foreach (var (k, v) in settings) all[k] = v;
-        return TestProxy.StartAsync(_upstream.BaseUrl, all);
+        return StartProxyAsync(all);
     }
 
     [Fact]
     public async Task Siblings_lane_drops_off_topic_echo_and_duplicate_lines_and_keeps_on_topic_ones()
     {
-        _upstream.Completion = _ => MessySiblings();
+        Upstream.Completion = _ => MessySiblings();
         await using var proxy = await StartAsync(("Lanes:siblings:MaxSiblings", "10"));
         var maxDrift = proxy.Options.Lanes["siblings"].MaxDrift;
 
@@ -63,7 +61,7 @@ public sealed class LaneDriftTests : IAsyncLifetime
     [Fact]
     public async Task A_later_hit_returns_exactly_the_accepted_content_and_headers_in_json_and_stream()
     {
-        _upstream.Completion = _ => MessySiblings();
+        Upstream.Completion = _ => MessySiblings();
         await using var proxy = await StartAsync();
 
         var miss = await proxy.AskAsync("siblings", Label.Question);
@@ -77,13 +75,13 @@ public sealed class LaneDriftTests : IAsyncLifetime
         Assert.Equal(miss.Content, streamed.Content);
         Assert.Equal(miss.Header("X-Rewrite-Drift"), hit.Header("X-Rewrite-Drift"));
         Assert.Equal(miss.Header("X-Rewrite-Dropped"), hit.Header("X-Rewrite-Dropped"));
-        Assert.Equal(1, _upstream.ChatCalls);
+        Assert.Equal(1, Upstream.ChatCalls);
     }
 
     [Fact]
     public async Task A_streamed_miss_carries_the_filtered_content()
     {
-        _upstream.Completion = _ => MessySiblings();
+        Upstream.Completion = _ => MessySiblings();
         await using var proxy = await StartAsync();
         var streamed = await proxy.AskAsync("siblings", Label.Question, stream: true);
         var json = await proxy.AskAsync("siblings", Label.Question);
@@ -96,7 +94,7 @@ public sealed class LaneDriftTests : IAsyncLifetime
     [Fact]
     public async Task Max_siblings_keeps_the_closest_first_and_counts_the_rest_as_surplus()
     {
-        _upstream.Completion = _ => MessySiblings();
+        Upstream.Completion = _ => MessySiblings();
         await using var proxy = await StartAsync(("Lanes:siblings:MaxSiblings", "2"));
         var maxDrift = proxy.Options.Lanes["siblings"].MaxDrift;
 
@@ -112,7 +110,7 @@ public sealed class LaneDriftTests : IAsyncLifetime
     [Fact]
     public async Task Observe_mode_reports_drift_but_returns_the_completion_unchanged()
     {
-        _upstream.Completion = _ => MessySiblings();
+        Upstream.Completion = _ => MessySiblings();
         await using var proxy = await StartAsync(("Lanes:siblings:Mode", "observe"));
 
         var reply = await proxy.AskAsync("siblings", Label.Question);
@@ -125,7 +123,7 @@ public sealed class LaneDriftTests : IAsyncLifetime
     [Fact]
     public async Task All_siblings_dropped_gives_an_empty_valid_answer_that_is_not_cached()
     {
-        _upstream.Completion = _ => string.Join("\n", Label.SiblingsOff.Where(s => Drift(Label.Question, s) > 0.65));
+        Upstream.Completion = _ => string.Join("\n", Label.SiblingsOff.Where(s => Drift(Label.Question, s) > 0.65));
         await using var proxy = await StartAsync();
 
         var first = await proxy.AskAsync("siblings", Label.Question);
@@ -142,7 +140,7 @@ public sealed class LaneDriftTests : IAsyncLifetime
     [Fact]
     public async Task An_on_topic_draft_is_kept_and_cached_with_its_drift()
     {
-        _upstream.Completion = _ => OnDraft;
+        Upstream.Completion = _ => OnDraft;
         await using var proxy = await StartAsync();
 
         var miss = await proxy.AskAsync("draft", Label.Question);
@@ -159,25 +157,25 @@ public sealed class LaneDriftTests : IAsyncLifetime
     public async Task Retry_asks_again_and_keeps_the_first_draft_that_passes()
     {
         var calls = 0;
-        _upstream.Completion = _ => Interlocked.Increment(ref calls) == 1 ? OffDraft : OnDraft;
+        Upstream.Completion = _ => Interlocked.Increment(ref calls) == 1 ? OffDraft : OnDraft;
         await using var proxy = await StartAsync(("Lanes:draft:OnDrift", "retry"), ("Lanes:draft:Retries", "2"));
 
         var reply = await proxy.AskAsync("draft", Label.Question);
 
         Assert.Equal(OnDraft, reply.Content);
-        Assert.Equal(2, _upstream.ChatCalls);
+        Assert.Equal(2, Upstream.ChatCalls);
         Assert.Equal("1", reply.Header("X-Rewrite-Dropped"));
     }
 
     [Fact]
     public async Task Retry_gives_up_after_its_retries_and_falls_back_to_the_question()
     {
-        _upstream.Completion = _ => OffDraft;
+        Upstream.Completion = _ => OffDraft;
         await using var proxy = await StartAsync(("Lanes:draft:OnDrift", "retry"), ("Lanes:draft:Retries", "1"));
 
         var reply = await proxy.AskAsync("draft", Label.Question);
 
-        Assert.Equal(2, _upstream.ChatCalls);
+        Assert.Equal(2, Upstream.ChatCalls);
         Assert.Equal(Label.Question, reply.Content);
         Assert.Equal("question", reply.Header("X-Rewrite-Fallback"));
     }
@@ -185,7 +183,7 @@ public sealed class LaneDriftTests : IAsyncLifetime
     [Fact]
     public async Task Fallback_answers_with_the_question_and_caches_nothing()
     {
-        _upstream.Completion = _ => OffDraft;
+        Upstream.Completion = _ => OffDraft;
         await using var proxy = await StartAsync(("Lanes:draft:OnDrift", "fallback"));
 
         var first = await proxy.AskAsync("draft", Label.Question, stream: true);
@@ -193,13 +191,13 @@ public sealed class LaneDriftTests : IAsyncLifetime
 
         Assert.Equal(Label.Question, first.Content);
         Assert.Equal("miss", second.Cache);
-        Assert.Equal(2, _upstream.ChatCalls);
+        Assert.Equal(2, Upstream.ChatCalls);
     }
 
     [Fact]
     public async Task Reject_is_422_naming_the_drift_and_the_threshold()
     {
-        _upstream.Completion = _ => OffDraft;
+        Upstream.Completion = _ => OffDraft;
         await using var proxy = await StartAsync(("Lanes:draft:OnDrift", "reject"));
 
         var reply = await proxy.AskAsync("draft", Label.Question);
@@ -214,7 +212,7 @@ public sealed class LaneDriftTests : IAsyncLifetime
     [Fact]
     public async Task Observe_mode_keeps_a_drifted_draft_and_says_it_would_drop_it()
     {
-        _upstream.Completion = _ => OffDraft;
+        Upstream.Completion = _ => OffDraft;
         await using var proxy = await StartAsync(("Lanes:draft:Mode", "observe"), ("Lanes:draft:OnDrift", "reject"));
 
         var reply = await proxy.AskAsync("draft", Label.Question);

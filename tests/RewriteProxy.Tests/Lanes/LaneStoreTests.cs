@@ -5,23 +5,17 @@ using RewriteProxy.Tests.Fixtures;
 namespace RewriteProxy.Tests.Lanes;
 
 /// <summary>Entries across restarts, expiry, eviction, and the store failing under a running proxy.</summary>
-public sealed class LaneStoreTests : IAsyncLifetime
+public sealed class LaneStoreTests : UpstreamAndProxy
 {
-    ScriptedUpstream _upstream = null!;
+    protected override bool StartsProxy => false;
 
-    public async Task InitializeAsync()
-    {
-        _upstream = await ScriptedUpstream.StartAsync();
-        _upstream.Completion = r => "A draft answer: " + ScriptedUpstream.LastUserText(r);
-    }
-
-    public async Task DisposeAsync() => await _upstream.DisposeAsync();
+    protected override void Script(ScriptedUpstream upstream) => upstream.Completion = ScriptedUpstream.DraftAnswer;
 
     Task<TestProxy> StartAsync(string storePath, params (string Key, string Value)[] settings)
     {
         var all = new Dictionary<string, string?> { ["Store:Path"] = storePath, ["Lanes:draft:MaxDrift"] = "0.9" };
         foreach (var (k, v) in settings) all[k] = v;
-        return TestProxy.StartAsync(_upstream.BaseUrl, all);
+        return StartProxyAsync(all);
     }
 
     static async Task FlushAsync(TestProxy proxy) =>
@@ -39,7 +33,7 @@ public sealed class LaneStoreTests : IAsyncLifetime
 
         Assert.Equal("hit-exact", (await second.AskAsync("draft", "How do I reset the PIN of my library card?")).Cache);
         Assert.Equal("hit-semantic", (await second.AskAsync("draft", "How can I reset my library card PIN?")).Cache);
-        Assert.Equal(1, _upstream.ChatCalls);
+        Assert.Equal(1, Upstream.ChatCalls);
     }
 
     [Fact]
@@ -50,7 +44,7 @@ public sealed class LaneStoreTests : IAsyncLifetime
         await Task.Delay(1200);
 
         Assert.Equal("miss", (await proxy.AskAsync("draft", "When does the swimming pool close?")).Cache);
-        Assert.Equal(2, _upstream.ChatCalls);
+        Assert.Equal(2, Upstream.ChatCalls);
     }
 
     [Fact]
@@ -138,6 +132,6 @@ public sealed class LaneStoreTests : IAsyncLifetime
         Assert.Equal(200, first.Status);
         Assert.Equal(200, second.Status);
         Assert.NotEqual("hit-exact", second.Cache); // the first answer could not be stored
-        Assert.Equal(3, _upstream.ChatCalls);
+        Assert.Equal(3, Upstream.ChatCalls);
     }
 }

@@ -58,7 +58,10 @@ public sealed class OpenAiSdkLaneTests : UpstreamAndProxy
         Assert.StartsWith("A draft answer:", miss.Text);
         Assert.Equal(miss.Text, hit.Text);
         Assert.Equal(1, Upstream.ChatCalls);
-        // The SDK asks for stream_options.include_usage itself (from memory); the usage chunk must then be there.
-        if (Upstream.Requests.Single().BodyText.Contains("include_usage")) Assert.NotNull(hit.Usage);
+        // The SDK asks for stream_options.include_usage on every streamed call, so the usage chunk must be there, with
+        // the miss's own token counts repeated by the hit.
+        Assert.NotNull(miss.Usage);
+        Assert.NotNull(hit.Usage);
+        Assert.Equal(miss.Usage.TotalTokenCount, hit.Usage.TotalTokenCount);
     }
 }

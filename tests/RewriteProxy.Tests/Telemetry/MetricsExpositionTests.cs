@@ -1,3 +1,5 @@
+using RewriteProxy.Guard;
+using RewriteProxy.Telemetry;
 using System.Globalization;
 using System.Net;
 using System.Net.Sockets;
@@ -15,8 +17,11 @@ namespace RewriteProxy.Tests.Telemetry;
 /// (Debian package `prometheus`), parsed here, and compared series by series with the workload's own counts.
 /// </summary>
 [Collection(MetricsCollection.Name)]
-public sealed class MetricsExpositionTests(MetricsWorkloadFixture run, ITestOutputHelper output) : IClassFixture<MetricsWorkloadFixture>
+public sealed class MetricsExpositionTests(MetricsWorkloadFixture run, ITestOutputHelper output) : UpstreamAndProxy, IClassFixture<MetricsWorkloadFixture>
 {
+    /// <summary>Each test starts the proxy it needs.</summary>
+    protected override bool StartsProxy => false;
+
     const string Draft = MetricsWorkloadFixture.DraftLane;
     const string Siblings = MetricsWorkloadFixture.SiblingsLane;
 
@@ -214,17 +219,16 @@ public sealed class MetricsExpositionTests(MetricsWorkloadFixture run, ITestOutp
             }
         var ourLanes = run.After.Samples.Where(s => s.Labels.TryGetValue("lane", out var l) && l is Draft or Siblings).ToList();
         Assert.All(ourLanes.Where(s => s.Name.StartsWith("rewriteproxy_guard_rejections", StringComparison.Ordinal)),
-            s => Assert.Contains(s.Labels["reason"], AnchorReason.All));
+            s => Assert.Contains(s.Labels["reason"], LabelValue.All<AnchorReason>()));
         Assert.All(ourLanes.Where(s => s.Name.StartsWith("rewriteproxy_dropped", StringComparison.Ordinal)),
-            s => Assert.Contains(s.Labels["reason"], new[] { "drift", "echo", "duplicate", "surplus", "policy" }));
+            s => Assert.Contains(s.Labels["reason"], LabelValue.All<DropReason>()));
     }
 
     [Fact]
     public async Task Metrics_port_serves_metrics()
     {
-        var port = FreeLoopbackPort();
-        await using var upstream = await ScriptedUpstream.StartAsync();
-        await using var proxy = await TestProxy.StartAsync(upstream.BaseUrl, PortSettings(port, "mport"));
+        var port = LoopbackPort.Free();
+        await using var proxy = await StartProxyAsync(PortSettings(port, "mport"));
         using var metricsClient = new HttpClient { BaseAddress = new Uri($"http://127.0.0.1:{port}/") };
 
         var scrape = await metricsClient.GetAsync("/metrics");
@@ -236,16 +240,14 @@ public sealed class MetricsExpositionTests(MetricsWorkloadFixture run, ITestOutp
     /// <summary>
     /// The contract of Metrics:Port (RewriteProxyOptions: "Serve /metrics on this port instead of the main one"): the
     /// main port keeps serving lanes and passthrough, and answers /metrics with 404 (the route requires the metrics
-    /// port's host). Today ProxyApp's ConfigureKestrel calls ListenLocalhost(port), and any Listen* call makes Kestrel
-    /// ignore UseUrls ("Overriding address(es) 'http://127.0.0.1:0'"): the main port is never bound and the metrics
-    /// port serves everything. See DEVELOPERS.md ("Metrics and Prometheus").
+    /// port's host). A Listen* call in ConfigureKestrel would make Kestrel ignore UseUrls and leave the main port unbound,
+    /// which is why ProxyApp adds the metrics port to the URLs instead.
     /// </summary>
     [Fact]
     public async Task Main_port_keeps_serving_lanes_but_not_metrics_when_a_metrics_port_is_set()
     {
-        var port = FreeLoopbackPort();
-        await using var upstream = await ScriptedUpstream.StartAsync();
-        await using var proxy = await TestProxy.StartAsync(upstream.BaseUrl, PortSettings(port, "mportmain"));
+        var port = LoopbackPort.Free();
+        await using var proxy = await StartProxyAsync(PortSettings(port, "mportmain"));
 
         var onMainPort = await proxy.Client.GetAsync("/metrics");
         var lane = await proxy.AskAsync("mportmain", "How long does the Marrow Island crossing take?");
@@ -274,12 +276,5 @@ public sealed class MetricsExpositionTests(MetricsWorkloadFixture run, ITestOutp
         {
             File.Delete(file);
         }
-    }
-
-    static int FreeLoopbackPort()
-    {
-        using var probe = new TcpListener(IPAddress.Loopback, 0);
-        probe.Start();
-        return ((IPEndPoint)probe.LocalEndpoint).Port;
     }
 }

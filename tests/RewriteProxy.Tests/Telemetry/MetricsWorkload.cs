@@ -162,7 +162,7 @@ public sealed class MetricsWorkload
         [$"Lanes:{siblingsLane}:MaxDrift"] = SiblingsMaxDrift.ToString(CultureInfo.InvariantCulture),
     };
 
-    /// <summary>The project's measured defaults (DEVELOPERS.md ("Drift guard and defaults")), set explicitly so the gauge's expected value is known here.</summary>
+    /// <summary>The project's measured defaults (docs/measurements/drift-defaults.md), set explicitly so the gauge's expected value is known here.</summary>
     public const double DraftMaxDrift = 0.50;
     public const double SiblingsMaxDrift = 0.65;
 
@@ -246,7 +246,7 @@ public sealed class MetricsWorkload
     async Task<LaneReply> AskAsync(LaneTally lane, string question, string credential)
     {
         _sent.Add(question);
-        var reply = await _proxy.PostLaneAsync(lane.Lane, LaneCalls.Request(question, model: Model), credential);
+        var reply = await _proxy.Client.PostLaneAsync(lane.Lane, LaneCalls.Request(question, model: Model), credential);
         Assert.True(reply.Status == 200, $"{lane.Lane} '{question}': {reply.Status} {reply.Body}");
         return reply;
     }
@@ -351,7 +351,7 @@ public sealed class MetricsWorkload
             ["function"] = new JsonObject { ["name"] = "book_seat", ["parameters"] = new JsonObject { ["type"] = "object" } },
         });
         _sent.Add(question);
-        var reply = await _proxy.PostLaneAsync(lane.Lane, body, credential);
+        var reply = await _proxy.Client.PostLaneAsync(lane.Lane, body, credential);
         Assert.Equal("bypass", reply.Cache);
         CountLookup(lane, reply);
     }

@@ -87,7 +87,7 @@ public sealed class MetricsWorkloadFixture : IAsyncLifetime
             var replies = new List<string>();
             foreach (var question in FailOpenQuestions)
             {
-                var reply = await failing.PostLaneAsync(FailOpenLane, LaneCalls.Request(question, model: MetricsWorkload.Model),
+                var reply = await failing.Client.PostLaneAsync(FailOpenLane, LaneCalls.Request(question, model: MetricsWorkload.Model),
                     MetricsWorkload.Credentials[0]);
                 Assert.Equal(200, reply.Status);
                 replies.Add(reply.Cache);

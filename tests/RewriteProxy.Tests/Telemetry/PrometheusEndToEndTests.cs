@@ -9,8 +9,11 @@ namespace RewriteProxy.Tests.Telemetry;
 /// alerts.rules.yml loaded; its HTTP API must then give the per-lane hit and drop ratios the workload produced.
 /// </summary>
 [Collection(MetricsCollection.Name)]
-public sealed class PrometheusEndToEndTests(ITestOutputHelper output)
+public sealed class PrometheusEndToEndTests(ITestOutputHelper output) : UpstreamAndProxy
 {
+    /// <summary>Each test starts the proxy it needs.</summary>
+    protected override bool StartsProxy => false;
+
     const string Draft = "pdraft";
     const string Siblings = "psiblings";
 
@@ -24,8 +27,7 @@ public sealed class PrometheusEndToEndTests(ITestOutputHelper output)
     public async Task Prometheus_reports_the_hit_and_drop_ratios_of_a_workload_through_the_proxy()
     {
         using var budget = new CancellationTokenSource(TestBudget);
-        await using var upstream = await ScriptedUpstream.StartAsync();
-        await using var proxy = await TestProxy.StartAsync(upstream.BaseUrl, MetricsWorkload.LaneSettings(Draft, Siblings));
+        await using var proxy = await StartProxyAsync(MetricsWorkload.LaneSettings(Draft, Siblings));
         var rules = new[] { "recording.rules.yml", "alerts.rules.yml" }.Select(f => Path.Combine(PromTools.PrometheusConfigDirectory, f));
         await using var prometheus = await PrometheusServer.StartAsync(proxy.Root.Authority, rules, budget.Token);
 
@@ -33,7 +35,7 @@ public sealed class PrometheusEndToEndTests(ITestOutputHelper output)
         var before = await prometheus.WaitForValueAsync($"rewriteproxy_lookups_total{{lane=\"{Draft}\",result=\"miss\"}}", budget.Token);
         Assert.True(before == 0, $"first scrape: {before}; server log:\n{prometheus.Log}");
 
-        var tally = await MetricsWorkload.RunAsync(proxy, upstream, SharedEmbedder.Instance, Draft, Siblings);
+        var tally = await MetricsWorkload.RunAsync(proxy, Upstream, SharedEmbedder.Instance, Draft, Siblings);
 
         // Until a scrape after the last call has landed: every lookup and every judged rewrite counted.
         var lanes = $"lane=~\"{Draft}|{Siblings}\"";

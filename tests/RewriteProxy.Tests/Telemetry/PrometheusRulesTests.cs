@@ -105,7 +105,7 @@ public sealed class PrometheusRulesTests
     public void Every_alert_has_a_wait_a_severity_annotations_and_a_runbook_section()
     {
         var rules = File.ReadAllText(RuleFiles[1]);
-        var runbook = File.ReadAllText(Path.Combine(PromTools.RepositoryRoot, "README.md"));
+        var runbook = File.ReadAllText(RepositoryRoot.File("README.md"));
         var blocks = Regex.Split(rules, @"(?=^\s+- alert: )", RegexOptions.Multiline).Where(b => b.TrimStart().StartsWith("- alert:"));
 
         foreach (var block in blocks)

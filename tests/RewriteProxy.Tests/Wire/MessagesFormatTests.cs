@@ -1,6 +1,7 @@
 using System.Text;
 using System.Text.Json.Nodes;
 using Microsoft.AspNetCore.Http;
+using RewriteProxy.Telemetry;
 using RewriteProxy.Wire;
 using RewriteProxy.Wire.Messages;
 
@@ -38,7 +39,7 @@ public sealed class MessagesFormatTests
     [InlineData("""{"model":"c","max_tokens":9,"messages":[{"role":"user","content":[{"type":"document","source":{"type":"text","data":"d"}}]}]}""", "media")]
     [InlineData("""{"model":"c","max_tokens":9,"messages":[{"role":"user","content":"q"}],"thinking":{"type":"enabled","budget_tokens":1024}}""", "thinking")]
     public void Calls_a_cache_cannot_stand_in_for_are_bypassed_with_a_reason(string json, string reason) =>
-        Assert.Equal(reason, Read(json).Bypass);
+        Assert.Equal(reason, LabelValue.Of(Read(json).Bypass!.Value));
 
     [Fact]
     public void Thinking_turned_off_is_not_a_bypass() =>

@@ -1,6 +1,7 @@
 using System.Text;
 using System.Text.Json.Nodes;
 using Microsoft.AspNetCore.Http;
+using RewriteProxy.Telemetry;
 using RewriteProxy.Wire;
 using RewriteProxy.Wire.Responses;
 
@@ -54,7 +55,7 @@ public sealed class ResponsesFormatTests
     [InlineData("""{"model":"m","input":[{"type":"function_call_output","call_id":"c1","output":"42"}]}""", "tools")]
     [InlineData("""{"model":"m","input":[{"type":"item_reference","id":"msg_1"}]}""", "unsupported_input")]
     public void Calls_a_cache_cannot_stand_in_for_are_bypassed_with_a_reason(string json, string reason) =>
-        Assert.Equal(reason, Read(json).Bypass);
+        Assert.Equal(reason, LabelValue.Of(Read(json).Bypass!.Value));
 
     [Theory]
     [InlineData("""{"input":"q"}""")]

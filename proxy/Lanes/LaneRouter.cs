@@ -1,0 +1,124 @@
+using Microsoft.AspNetCore.Http;
+using RewriteProxy.Cache;
+using RewriteProxy.Forwarding;
+using RewriteProxy.Telemetry;
+using RewriteProxy.Wire;
+
+namespace RewriteProxy.Lanes;
+
+/// <summary>
+/// A lane call from its endpoint to its answer. Reads the request, finds the question and its scope, and sends the call
+/// where it belongs: a hit is answered from the cache, a miss goes to the <see cref="RewriteFlow"/>, and a call a cache
+/// cannot stand in for, a <c>no-store</c> lookup or any failure of the cache side goes to the upstream untouched.
+/// </summary>
+public sealed class LaneRouter(RewriteProxyOptions options, IRewriteCache cache, RewriteFlow rewrites, Passthrough passthrough,
+    FailOpenLog failOpen, LaneTally tally)
+{
+    public async Task HandleAsync(HttpContext context, string laneName, LaneEndpoint endpoint)
+    {
+        var format = endpoint.Format;
+        if (!options.Lanes.TryGetValue(laneName, out var lane))
+        {
+            await LaneEndpoints.UnknownLaneAsync(context, options, laneName);
+            return;
+        }
+
+        var body = await RequestBody.ReadAsync(context, options.Limits.MaxRequestBytes, format);
+        if (body is null) return;
+        LaneRequest request;
+        try
+        {
+            request = format.Read(body, endpoint.PathModel);
+        }
+        catch (ChatRequestException e)
+        {
+            await format.WriteErrorAsync(context, 400, e.Message, "invalid_request_error", "invalid_request");
+            return;
+        }
+
+        var directives = CacheDirectives.Parse(context.Request.Headers.CacheControl);
+        var extraction = QuestionExtractor.Extract(request, lane);
+        if (extraction.Site is not { } site)
+        {
+            context.Response.Headers[RewriteHeaders.Bypass] = LabelValue.Of(extraction.BypassReason!.Value);
+            await BypassAsync(context, lane, endpoint, body);
+            return;
+        }
+
+        var partition = PartitionKey.Of(options.Partition, context.Request.Headers);
+        var key = new CacheKey(lane.Name, ScopeKey.Compute(lane, endpoint, request, site, partition, VersionHeaders(context, format)), partition, site.Question,
+            QuestionText.Normalize(site.Question));
+
+        float[]? questionVector = null;
+        var lookUp = !directives.NoCache && !directives.NoStore;
+        if (lookUp)
+        {
+            LookupResult found;
+            try
+            {
+                found = cache.Lookup(key, lane.HitSimilarity);
+            }
+            catch (CacheFailure f)
+            {
+                failOpen.Record(f.Reason, f.Message);
+                await BypassAsync(context, lane, endpoint, body);
+                return;
+            }
+            if (found.Entry is { } entry)
+            {
+                CountHit(lane, found, entry);
+                await AnswerWriter.WriteHitAsync(context, request, found);
+                return;
+            }
+            questionVector = found.QuestionVector;
+        }
+
+        var miss = new Miss(lane, endpoint, request, site, key, context.Request.Headers, Store: !directives.NoStore, questionVector);
+        MissOutcome outcome;
+        var joined = false;
+        try
+        {
+            // A caller that joined another's call waits no longer than its own call could have taken.
+            outcome = await rewrites.RunAsync(miss, coalesce: lookUp, out joined)
+                .WaitAsync(options.Upstream.Timeout + RewriteFlow.CommitWait, context.RequestAborted);
+        }
+        catch (TimeoutException)
+        {
+            outcome = MissOutcome.UpstreamTimeout;
+        }
+        catch (OperationCanceledException) when (context.RequestAborted.IsCancellationRequested)
+        {
+            // The client left; a coalesced call goes on for the others and is still stored.
+            return;
+        }
+        if (joined) ProxyMetrics.Coalesced.WithLabels(lane.Name).Inc();
+        var result = directives.NoStore ? CacheResult.Bypass : CacheResult.Miss;
+        tally.Lookup(lane.Name, result);
+        context.Response.Headers[RewriteHeaders.Cache] = RewriteHeaders.CacheValue(result);
+        await AnswerWriter.WriteMissAsync(context, request, outcome);
+    }
+
+    /// <summary>The values of the headers the format scopes on (Anthropic's API version and betas), with their names.</summary>
+    static string VersionHeaders(HttpContext context, IWireFormat format) => string.Join("\n",
+        format.ScopeHeaders.Select(h => h + ": " + context.Request.Headers[h].ToString()));
+
+    void CountHit(LaneOptions lane, LookupResult found, StoredEntry entry)
+    {
+        var semantic = found.Kind == LookupKind.HitSemantic;
+        tally.Lookup(lane.Name, semantic ? CacheResult.HitSemantic : CacheResult.HitExact);
+        tally.Saved(lane.Name, AnswerWriter.SavedTokens(entry));
+        if (semantic) ProxyMetrics.HitSimilarity.WithLabels(lane.Name).Observe(found.Similarity!.Value);
+        cache.RecordHit(entry);
+    }
+
+    /// <summary>Forwards the call untouched, uncached (a bypass, or a fail-open).</summary>
+    async Task BypassAsync(HttpContext context, LaneOptions lane, LaneEndpoint endpoint, byte[] body)
+    {
+        tally.Lookup(lane.Name, CacheResult.Bypass);
+        context.Response.Headers[RewriteHeaders.Cache] = RewriteHeaders.CacheValue(CacheResult.Bypass);
+        context.Request.Headers.Remove(RewriteHeaders.Lane);
+        context.Request.Body = new MemoryStream(body, writable: false);
+        context.Request.ContentLength = body.Length;
+        await passthrough.ForwardAsync(context, endpoint.UpstreamPath);
+    }
+}

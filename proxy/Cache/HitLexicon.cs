@@ -35,6 +35,8 @@ internal static class HitLexicon
         // modifiers that name the default ("the normal hourly rate" / "the hourly rate"): read from the demo scenario's
         // paraphrases, which the decision refused without them.
         "become", "becomes", "became", "becoming", "each", "every", "per", "normal", "usual", "standard", "regular",
+        // "Where can I find the pool?" asks "Where is the pool?" (SemanticCacheTests).
+        "find",
     ], StringComparer.Ordinal);
 
     /// <summary>Words of a written number or percentage that the anchor guard compares ("twenty-five percent" / "25%").</summary>

@@ -6,7 +6,7 @@ namespace RewriteProxy.Cache;
 /// negations, identifiers, WordNet antonyms), then the two questions aligned word by word, refusing when two parts
 /// trade places (<see cref="AnchorReason.Role"/>) or when a word changed into one that WordNet does not give the same
 /// sense (<see cref="AnchorReason.Substitution"/>). The one place <see cref="SemanticCache"/> asks. Thread-safe.
-/// Rules and measurements: DEVELOPERS.md ("Hit decision").
+/// Rules and measurements: docs/measurements/precision.md.
 /// </summary>
 public sealed class HitDecision
 {

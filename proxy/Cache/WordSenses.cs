@@ -20,7 +20,7 @@ internal sealed class WordSenses
     /// <summary>
     /// How many of a word's senses count, per part of speech, most frequent first (WordNet's sense order). Rare senses
     /// make unrelated words synonyms: "board" and "card" share only their 8th and 11th noun senses (a circuit board).
-    /// 3 measured best on the dev part of the hit corpus (DEVELOPERS.md, "Hit decision").
+    /// 3 measured best on the dev part of the hit corpus (docs/measurements/precision.md).
     /// </summary>
     public const int DefaultDepth = 3;
 
@@ -44,14 +44,14 @@ internal sealed class WordSenses
     /// <summary>
     /// How deep the shared sense may lie for the other word, when it is among the first <see cref="Depth"/> senses of one
     /// of them (a sense frequent for one word may be rare for its synonym). 6: on the dev part it served 3 more paraphrases
-    /// than 3 and no more near-misses; "all" served one more near-miss (DEVELOPERS.md, "Hit decision").
+    /// than 3 and no more near-misses; "all" served one more near-miss (docs/measurements/precision.md).
     /// </summary>
     public int OtherDepth { get; init; } = DefaultOtherDepth;
 
     public const int DefaultOtherDepth = 6;
 
     /// <summary>Whether a word and its direct hypernym ("fee" / "charge") count as the same sense. Off: on the dev part it served
-    /// 3 more near-misses for 2 more paraphrases (DEVELOPERS.md, "Hit decision").</summary>
+    /// 3 more near-misses for 2 more paraphrases (docs/measurements/precision.md).</summary>
     public bool WithHypernyms { get; init; }
 
     /// <summary>The same table with other settings: for the measurement that chose them.</summary>

@@ -52,7 +52,7 @@ public static class SiblingGuard
     /// relevance, so MMR never keeps a far, "diverse" line in place of a near one. 0.45: on the dev part of the labelled
     /// sibling sets (tests/corpus/siblings) floors from 0.30 to 0.45 gave the fewest sets with an off-topic line kept while an
     /// on-topic one was dropped (7 of 80, against 9 with MMR over every candidate); the highest of them keeps the most
-    /// diversity (DEVELOPERS.md, "Drift guard and defaults").
+    /// diversity (docs/measurements/drift-defaults.md).
     /// </summary>
     public const double RelevanceFloor = 0.45;
 

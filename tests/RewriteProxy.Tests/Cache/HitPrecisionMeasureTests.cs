@@ -65,7 +65,7 @@ public sealed class HitPrecisionMeasureTests(ITestOutputHelper output)
     }
 
     /// <summary>
-    /// What the decision measured at the default HitSimilarity (DEVELOPERS.md, "Hit decision"): dev (tuned on) and test
+    /// What the decision measured at the default HitSimilarity (docs/measurements/precision.md): dev (tuned on) and test
     /// (read when the decision was final: 3 near-misses; 1 after two bugs found by reading those 3 were fixed).
     /// A change that serves more near-misses, or fewer paraphrases, fails here.
     /// </summary>

@@ -66,6 +66,16 @@ public sealed partial class AnchorGuard
                 continue;
             }
 
+            if (AnchorNumbers.CountedCompound(lower) is { } counted)
+            {
+                // "a five-day course", "a 10-trip card": the count is a number like any other, the rest a plain word.
+                numbers.Add(counted.Number);
+                words.Add(Normalise(lower));
+                words.Add(counted.Word);
+                _antonyms.AddLemmas(counted.Word, lemmas);
+                continue;
+            }
+
             if (lower.Any(char.IsDigit))
             {
                 if (DigitsAndSeparators().IsMatch(lower))

@@ -17,6 +17,10 @@ public enum AnchorReason
     Identifier,
     /// <summary>A word in one question has its antonym in the other.</summary>
     Contrast,
+    /// <summary>The hit decision: two parts of the question trade places ("the buyer pays the seller" / "the seller pays the buyer").</summary>
+    Role,
+    /// <summary>The hit decision: a word was replaced, added or dropped, and WordNet has no sense the two share ("diesel" / "petrol").</summary>
+    Substitution,
 }
 
 /// <summary>
@@ -100,11 +104,56 @@ public sealed partial class AnchorGuard
             // A plural s does not make another name ("Saturday" / "Saturdays").
             if (other.Tokens.Contains(id) || other.Tokens.Contains(id + "s")
                 || (id.Length > 2 && id[^1] == 's' && other.Tokens.Contains(id[..^1]))) continue;
+            if (Spelled(id, other.Text)) continue;
+            // The other question has the short form: "NI" for "National Insurance", "Sat" for "Saturday".
+            if (other.Identifiers.Any(o => o.Length < id.Length && Spelled(o, from.Text) && SpelledFrom(o, id, from.Text))) continue;
             return $"identifier '{id}' only in one question";
         }
         foreach (var quote in from.Quotes)
             if (!other.Text.Contains(quote, StringComparison.Ordinal)) return $"quoted \"{quote}\" only in one question";
         return null;
+    }
+
+    /// <summary>
+    /// An abbreviation written out in the other question: the initials of consecutive words ("HR" / "human resources",
+    /// "IDP" / "international driving permit"), or the letters in order of one longer word from its first ("ID" /
+    /// "identification"). Letters only, 2 to 5 of them: codes with digits must match as written.
+    /// </summary>
+    static bool Spelled(string id, string otherText)
+    {
+        if (id.Length is < 2 or > 5 || !id.All(char.IsAsciiLetterLower)) return false;
+        var words = otherText.Split([' ', '-', '/', ',', '.', '?', '!', '(', ')', ':', ';'], StringSplitOptions.RemoveEmptyEntries);
+        for (var s = 0; s + id.Length <= words.Length; s++)
+        {
+            var initials = true;
+            for (var c = 0; c < id.Length && initials; c++) initials = words[s + c][0] == id[c];
+            if (initials) return true;
+        }
+        foreach (var w in words)
+        {
+            if (w.Length < id.Length + 2 || w[0] != id[0]) continue;
+            var i = 0;
+            foreach (var c in w)
+                if (i < id.Length && id[i] == c) i++;
+            if (i == id.Length) return true;
+        }
+        return false;
+    }
+
+    /// <summary>The short form <paramref name="shortForm"/> stands for words of <paramref name="text"/> that include <paramref name="id"/>.</summary>
+    static bool SpelledFrom(string shortForm, string id, string text)
+    {
+        var words = text.Split([' ', '-', '/', ',', '.', '?', '!', '(', ')', ':', ';'], StringSplitOptions.RemoveEmptyEntries);
+        var at = Array.IndexOf(words, id);
+        if (at < 0) return false;
+        if (Spelled(shortForm, id)) return true;
+        for (var s = Math.Max(0, at - shortForm.Length + 1); s <= at && s + shortForm.Length <= words.Length; s++)
+        {
+            var initials = true;
+            for (var c = 0; c < shortForm.Length && initials; c++) initials = words[s + c][0] == shortForm[c];
+            if (initials) return true;
+        }
+        return false;
     }
 
     /// <summary>

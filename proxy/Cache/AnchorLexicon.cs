@@ -52,6 +52,16 @@ internal static class AnchorLexicon
         "someone", "anyone", "everyone",
     ], StringComparer.Ordinal);
 
+    /// <summary>
+    /// Words after which "one" stands for a thing already named, not a count ("rent one at reception", "the second one
+    /// paid", "one or two" aside): prepositions, conjunctions and verbs of being. Read from the dev part of the hit corpus.
+    /// </summary>
+    public static readonly FrozenSet<string> PronounOneAfter = FrozenSet.ToFrozenSet(
+    [
+        "another", "at", "in", "on", "of", "for", "from", "to", "with", "by", "if", "is", "are", "was", "were", "be", "paid",
+        "that", "which", "who", "instead", "too", "as", "when", "before", "after",
+    ], StringComparer.Ordinal);
+
     /// <summary>Currency symbols: they name the unit of the number after them.</summary>
     public static readonly FrozenDictionary<char, string> CurrencySymbols = new Dictionary<char, string>
     {

@@ -112,7 +112,9 @@ internal static partial class AnchorNumbers
         if (CardinalWord(first) is null && !AnchorLexicon.Multipliers.ContainsKey(first)) return false;
         if (first == "one" && (i + 1 >= tokens.Count || !IsNumberWord(tokens[i + 1].Lower))
             && ((i > 0 && AnchorLexicon.PronounOneBefore.Contains(tokens[i - 1].Lower))
-                || (i + 1 < tokens.Count && tokens[i + 1].Lower == "another")))
+                || (i > 0 && AnchorLexicon.Ordinals.ContainsKey(tokens[i - 1].Lower))
+                || i + 1 >= tokens.Count
+                || AnchorLexicon.PronounOneAfter.Contains(tokens[i + 1].Lower)))
             return false;
 
         long total = 0, current = 0;
@@ -132,6 +134,18 @@ internal static partial class AnchorNumbers
         consumed = j - i - 1;
         value = (total + current).ToString(CultureInfo.InvariantCulture);
         return true;
+    }
+
+    /// <summary>"five-day", "10-trip", "twenty-five-year": a count joined by a hyphen to a word; null for anything else ("twenty-one", "XR-200").</summary>
+    internal static (string Number, string Word)? CountedCompound(string lower)
+    {
+        var dash = lower.LastIndexOf('-');
+        if (dash <= 0 || dash == lower.Length - 1) return null;
+        var head = lower[..dash];
+        var rest = lower[(dash + 1)..];
+        if (!rest.All(char.IsLetter) || CardinalWord(rest) is not null || AnchorLexicon.Ordinals.ContainsKey(rest)) return null;
+        if (head.All(char.IsDigit)) return (CanonicalDigits(head)!, rest);
+        return CardinalWord(head) is { } n ? (n.ToString(CultureInfo.InvariantCulture), rest) : null;
     }
 
     static bool IsNumberWord(string lower) => CardinalWord(lower) is not null || AnchorLexicon.Multipliers.ContainsKey(lower);

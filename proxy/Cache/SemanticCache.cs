@@ -18,6 +18,7 @@ public sealed class SemanticCache : IRewriteCache
     readonly VectorIndex _index;
     readonly IEmbedder _embedder;
     readonly AnchorGuard _guard;
+    readonly HitDecision _decision;
     readonly LaneTally _tally;
     readonly StoreOptions _options;
     readonly ILogger _log;
@@ -31,6 +32,7 @@ public sealed class SemanticCache : IRewriteCache
         _index = index;
         _embedder = embedder;
         _guard = guard;
+        _decision = new HitDecision(guard);
         _tally = tally;
         _options = options;
         _log = log;
@@ -120,7 +122,7 @@ public sealed class SemanticCache : IRewriteCache
         }
         if (near.Count == 0) return new LookupResult(LookupKind.Miss, null, null, vector);
 
-        var asked = _guard.Extract(key.Question);
+        var asked = _decision.Read(key.Question);
         foreach (var (id, similarity) in near)
         {
             StoredEntry? entry;
@@ -133,7 +135,7 @@ public sealed class SemanticCache : IRewriteCache
                 throw new CacheFailure(FailOpenReason.Store, e.Message, e);
             }
             if (entry is null) continue;
-            var verdict = _guard.Compare(asked, _guard.Extract(entry.Question));
+            var verdict = _decision.Decide(asked, _decision.Read(entry.Question), similarity);
             if (verdict.Agree) return new LookupResult(LookupKind.HitSemantic, entry, similarity, vector);
 
             var reason = verdict.Reason!.Value;

@@ -320,7 +320,8 @@ public static class DemoScenario
              "How do staff sign the closing log when they lock up the branch?"]),
 
         new("How many weeks of paid parental leave does the network offer?",
-            ["How many weeks of paid parental leave does the library network offer?",
+            // Not "the library network": a qualifier added is read as a change of scope by the hit decision (README).
+            ["How many weeks of parental leave with pay does the network offer?",
              "How many weeks of paid parental leave are offered by the network?"],
             new("How many weeks of unpaid parental leave does the network offer?", "negation", "paid", "unpaid"),
             "The network offers 16 weeks of paid parental leave to staff with at least one year of service, and a further " +

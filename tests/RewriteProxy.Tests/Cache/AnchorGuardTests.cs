@@ -33,8 +33,9 @@ public sealed class AnchorGuardTests
         Assert.True(AnchorGuardCases.All.Count >= 40);
         Assert.True(AnchorGuardCases.All.Count(p => p.IsParaphrase) >= 20);
         Assert.True(AnchorGuardCases.All.Count(p => !p.IsParaphrase) >= 20);
-        // Every refusal reason is exercised by at least one near-miss.
-        Assert.All(Enum.GetValues<AnchorReason>(), r => Assert.Contains(AnchorGuardCases.All, p => p.Reason == r));
+        // Every refusal reason of the guard is exercised by at least one near-miss (the hit decision's own: HitDecisionTests).
+        Assert.All(Enum.GetValues<AnchorReason>().Where(r => r is not (AnchorReason.Role or AnchorReason.Substitution)),
+            r => Assert.Contains(AnchorGuardCases.All, p => p.Reason == r));
     }
 
     [Theory]

@@ -113,7 +113,8 @@ public sealed class DriftDefaultsTests(ReferenceEncoder encoder, ITestOutputHelp
             var spreads = new List<double>();
             foreach (var (q, texts, vectors, off) in cases)
             {
-                var j = SiblingGuard.Judge(q, texts, vectors, "", lane, lambda);
+                // The floor off (at MaxDrift): this measures λ alone.
+                var j = SiblingGuard.Judge(q, texts, vectors, "", lane, lambda, lane.MaxDrift);
                 count += j.Kept.Count(k => off.Contains(k.Text));
                 var kept = j.Kept.Select(k => vectors[Array.IndexOf(texts, k.Text)]).ToArray();
                 for (var a = 0; a < kept.Length; a++)

@@ -26,10 +26,14 @@ public sealed class QuestionLocationLaneTests : IAsyncLifetime
         return 1 - TensorPrimitives.CosineSimilarity(v[0], v[1]);
     }
 
+    /// <summary>A siblings lane no other test uses: metrics are process-wide, so the counter test reads its own lane.</summary>
+    const string OwnLane = "riders-siblings";
+
     Task<TestProxy> StartAsync(string? store = null) => TestProxy.StartAsync(_upstream.BaseUrl, new Dictionary<string, string?>
     {
         ["Admin:Token"] = Token,
         ["Store:Path"] = store ?? TestProxy.NewStorePath(),
+        [$"Lanes:{OwnLane}:Kind"] = "siblings",
     });
 
     static Task<LaneReply> AskAsync(TestProxy proxy, string lane, string userMessage, string? system = null) =>
@@ -88,11 +92,11 @@ public sealed class QuestionLocationLaneTests : IAsyncLifetime
         const string offTopic = "What is the boiling point of olive oil?";
         _upstream.Completion = _ => "Can I buy a tram ticket on board?\n" + offTopic;
         await using var proxy = await StartAsync();
-        var before = await MetricAsync(proxy, "rewriteproxy_question_unlocated_total{lane=\"siblings\"}");
+        var before = await MetricAsync(proxy, $"rewriteproxy_question_unlocated_total{{lane=\"{OwnLane}\"}}");
 
-        var first = await AskAsync(proxy, "siblings", Prompt("Do trams run after midnight?"));
-        var repeat = await AskAsync(proxy, "siblings", Prompt("Do trams run after midnight?"));
-        var paraphrase = await AskAsync(proxy, "siblings", Prompt("Are trams running after midnight?"));
+        var first = await AskAsync(proxy, OwnLane, Prompt("Do trams run after midnight?"));
+        var repeat = await AskAsync(proxy, OwnLane, Prompt("Do trams run after midnight?"));
+        var paraphrase = await AskAsync(proxy, OwnLane, Prompt("Are trams running after midnight?"));
 
         Assert.Equal("unlocated", first.Header("X-Rewrite-Question"));
         Assert.Equal("observe", first.Header("X-Rewrite-Mode"));
@@ -100,7 +104,7 @@ public sealed class QuestionLocationLaneTests : IAsyncLifetime
         Assert.Equal("hit-exact", repeat.Cache);
         Assert.Equal(first.Content, repeat.Content);
         Assert.Equal("miss", paraphrase.Cache);
-        Assert.Equal(before + 3, await MetricAsync(proxy, "rewriteproxy_question_unlocated_total{lane=\"siblings\"}"));
+        Assert.Equal(before + 3, await MetricAsync(proxy, $"rewriteproxy_question_unlocated_total{{lane=\"{OwnLane}\"}}"));
     }
 
     [Fact]

@@ -16,16 +16,7 @@ public sealed class ChatCompletion
     /// <summary>Reads the first choice's message content; anything else is a <see cref="FormatException"/> (a 502, never cached).</summary>
     public static ChatCompletion Parse(ReadOnlySpan<byte> utf8)
     {
-        JsonObject body;
-        try
-        {
-            body = JsonNode.Parse(utf8, documentOptions: new JsonDocumentOptions { MaxDepth = 64 }) as JsonObject
-                   ?? throw new FormatException("the upstream answer is not a JSON object");
-        }
-        catch (Exception e) when (e is JsonException or ArgumentException)
-        {
-            throw new FormatException("the upstream answer is not valid JSON", e);
-        }
+        var body = WireJson.ParseAnswer(utf8);
         if (body["choices"] is not JsonArray { Count: > 0 } choices || choices[0] is not JsonObject choice
             || choice["message"] is not JsonObject message)
             throw new FormatException("the upstream answer has no choices[0].message");
@@ -44,12 +35,4 @@ public sealed class ChatCompletion
     }
 
     static int Int(JsonNode? n) => n is JsonValue v && v.GetValueKind() == JsonValueKind.Number && v.TryGetValue<int>(out var i) ? i : 0;
-
-    /// <summary>The same body with the first choice's content replaced; every other field untouched.</summary>
-    public JsonObject WithContent(string content)
-    {
-        var copy = (JsonObject)Body.DeepClone();
-        copy["choices"]![0]!["message"]!["content"] = content;
-        return copy;
-    }
 }

@@ -56,13 +56,7 @@ public sealed class ChatCompletionsFormat : IWireFormat
             return BypassReason.N;
         if (body["logprobs"] is JsonValue lp && lp.GetValueKind() == JsonValueKind.True) return BypassReason.Logprobs;
         if (body["modalities"] is JsonArray modalities && modalities.Any(m => m?.ToString() != "text")) return BypassReason.Modalities;
-        foreach (var node in chat.Messages)
-        {
-            var message = (JsonObject)node!;
-            if (message["tool_calls"] is not null || WireJson.String(message["role"]) is "tool" or "function") return BypassReason.Tools;
-            foreach (var part in (message["content"] as JsonArray) ?? [])
-                if (part is JsonObject p && WireJson.String(p["type"]) is { } type && type != "text") return BypassReason.Media;
-        }
+        // Tool turns and media parts in the conversation are found by QuestionExtractor, on every format's view.
         return null;
     }
 

@@ -35,7 +35,13 @@ public static class IndexSnapshotWriter
     /// saved later, as of a sequence at least that new, and replaying changes is idempotent, so replaying from it is
     /// correct for every scope.
     /// </summary>
-    public static SnapshotSaved Save(VectorIndex index, SnapshotOrigin origin, string path)
+    /// <param name="index">The index to save.</param>
+    /// <param name="origin">The model, store and change sequence the index holds.</param>
+    /// <param name="path">The snapshot file; its folder is made (0700) if missing.</param>
+    /// <param name="stillValid">Asked before the new file replaces the old: false (the index was rebuilt meanwhile, so
+    /// it may mix two states) discards it.</param>
+    /// <returns>What was written; null when <paramref name="stillValid"/> said no.</returns>
+    public static SnapshotSaved? Save(VectorIndex index, SnapshotOrigin origin, string path, Func<bool>? stillValid = null)
     {
         IndexSnapshotFormat.RequireLittleEndian();
         var watch = Stopwatch.StartNew();
@@ -86,6 +92,7 @@ public static class IndexSnapshotWriter
                 AppendChecksum(output);
                 output.Flush(flushToDisk: true);
             }
+            if (stillValid is not null && !stillValid()) return null;
             File.Move(temporary, full, overwrite: true);
             return new SnapshotSaved(new FileInfo(full).Length, entries, scopes, graphs, watch.Elapsed, longest);
         }

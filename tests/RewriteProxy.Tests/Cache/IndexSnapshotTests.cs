@@ -75,7 +75,7 @@ public sealed class IndexSnapshotTests : IDisposable
         using var _ = original;
         Assert.True(original.UsesGraph(Big) && original.UsesGraph(Middle) && !original.UsesGraph(Small));
 
-        var saved = IndexSnapshotWriter.Save(original, new SnapshotOrigin(Model, Store, Sequence: 1234), SnapshotPath);
+        var saved = IndexSnapshotWriter.Save(original, new SnapshotOrigin(Model, Store, Sequence: 1234), SnapshotPath)!;
         using var reloaded = Reload(SnapshotPath);
 
         Assert.Equal((original.Count, 3, 2), (saved.Entries, saved.Scopes, saved.Graphs));
@@ -113,6 +113,22 @@ public sealed class IndexSnapshotTests : IDisposable
 
         Assert.Equal(99_999, reloaded.Search(Big, added, 1, 0.99f).Single().Id);
         Assert.DoesNotContain(reloaded.Search(Big, rows[Big][1], 4, -1f), r => r.Id == 2);
+    }
+
+    [Fact]
+    public void A_snapshot_the_caller_no_longer_vouches_for_replaces_nothing()
+    {
+        var (original, _) = Original();
+        using var _ = original;
+        IndexSnapshotWriter.Save(original, new SnapshotOrigin(Model, Store, 1), SnapshotPath);
+        original.Remove(3);
+
+        var saved = IndexSnapshotWriter.Save(original, new SnapshotOrigin(Model, Store, 2), SnapshotPath, stillValid: () => false);
+
+        Assert.Null(saved);
+        using var reader = IndexSnapshotReader.Open(SnapshotPath);
+        Assert.Equal(1L, reader.Header.Sequence);
+        Assert.Equal([SnapshotPath], Directory.GetFiles(_folder));
     }
 
     [Fact]

@@ -8,6 +8,28 @@ namespace RewriteProxy.Cache;
 /// </summary>
 public sealed partial class VectorIndex
 {
+    /// <summary>True while a snapshot holds writers off (one scope's copy).</summary>
+    private volatile bool _heldForSnapshot;
+
+    /// <summary>
+    /// <see cref="Add"/>, unless a snapshot holds writers off right now: then false at once, and the caller leaves the
+    /// entry to the index follower, which applies it from the store's change feed once the hold ends. For the request
+    /// path: a miss's answer never waits on a snapshot (at 1M entries a hold lasts seconds, docs/measurements/snapshots.md).
+    /// </summary>
+    public bool AddUnlessHeld(string scope, long id, float[] vector)
+    {
+        if (_heldForSnapshot) return false;
+        Add(scope, id, vector);
+        return true;
+    }
+
+    /// <summary><see cref="Remove"/>, unless a snapshot holds writers off right now (false; the follower applies it).</summary>
+    public bool RemoveUnlessHeld(long id)
+    {
+        if (_heldForSnapshot) return false;
+        Remove(id);
+        return true;
+    }
     /// <summary>
     /// Calls <paramref name="held"/> for each scope there is now, one scope at a time, each while holding the writer
     /// lock: the scope's rows and graph cannot change meanwhile, so they are saved consistent with each other. Searches
@@ -28,7 +50,15 @@ public sealed partial class VectorIndex
                 ObjectDisposedException.ThrowIf(_disposed, this);
                 var start = Stopwatch.GetTimestamp();
                 if (!_scopes.TryGetValue(name, out var scope)) continue;
-                held(scope);
+                _heldForSnapshot = true;
+                try
+                {
+                    held(scope);
+                }
+                finally
+                {
+                    _heldForSnapshot = false;
+                }
                 var hold = Stopwatch.GetElapsedTime(start);
                 if (hold > longest) longest = hold;
             }

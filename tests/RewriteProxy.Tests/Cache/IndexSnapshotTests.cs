@@ -116,6 +116,37 @@ public sealed class IndexSnapshotTests : IDisposable
     }
 
     [Fact]
+    public async Task While_a_snapshot_holds_a_scope_searches_go_on_and_the_request_paths_writes_do_not_wait()
+    {
+        var (original, rows) = Original();
+        using var _ = original;
+        using var holding = new ManualResetEventSlim();
+        using var release = new ManualResetEventSlim();
+        var heldScope = "";
+        var save = Task.Run(() => original.ForEachScopeHeld(held: scope =>
+        {
+            heldScope = scope.Name;
+            holding.Set();
+            release.Wait();
+        }, released: () => { }));
+        holding.Wait();
+
+        // The very scope being saved is searched meanwhile.
+        var found = original.Search(heldScope, rows[heldScope][10], 1, 0.99f);
+        var addedAtOnce = original.AddUnlessHeld(Big, 77_777, rows[Big][10]);
+        var blockedAdd = Task.Run(() => original.Add(Small, 88_888, rows[Small][0]));
+        var waited = await Task.WhenAny(blockedAdd, Task.Delay(300)) != blockedAdd;
+        release.Set();
+        await save;
+        await blockedAdd;
+
+        Assert.Single(found);
+        Assert.False(addedAtOnce);
+        Assert.True(waited, "an ordinary writer did not wait for the hold: the hold held nothing");
+        Assert.True(original.AddUnlessHeld(Big, 77_777, rows[Big][10]));
+    }
+
+    [Fact]
     public void A_snapshot_the_caller_no_longer_vouches_for_replaces_nothing()
     {
         var (original, _) = Original();

@@ -53,7 +53,7 @@ public sealed record StoreOptions
     /// <summary>
     /// How often the index is saved while it changes (also once after a rebuild, and on a graceful stop). Default 15
     /// minutes: a crash costs the next start a replay of at most that much of the store's change feed (kept 24 hours),
-    /// and a save is cheap beside it: MEASURE at 100k entries, writers of the index held MEASURE at most, lookups
+    /// and a save is cheap beside it: 1.1 s and 246 MB at 100k entries, writers of the index held 0.63 s at most, lookups
     /// never (docs/measurements/snapshots.md).
     /// </summary>
     public TimeSpan IndexSnapshotInterval { get; init; } = TimeSpan.FromMinutes(15);

@@ -1,0 +1,82 @@
+# Sourced by scripts/bench.sh: the `restart` subject (issue #14): how long a restarted proxy takes to serve its first
+# semantic hit, with an index snapshot and with a rebuild from the store, at ENTRIES entries in one scope (a graph).
+#
+#   scripts/bench.sh restart [entries]     (default 100000)
+#
+# 1. A proxy on an empty store answers the benchmark question once (a miss: one real entry, stored) and stops.
+# 2. `RewriteProxy.Benchmarks seed-store` adds entries - 1 synthetic entries to the same scope through the store's API.
+# 3. Start with no snapshot: the index is rebuilt from the store (the graph built from scratch), then saved.
+# 4. Stop gracefully, start again: the index is loaded from the snapshot and caught up from the store.
+# Each start is timed from the process's launch to /readyz (the floor: process, model, store) and to the first
+# semantic hit of the paraphrase, probed with `Cache-Control: only-if-cached` every 250 ms (a probe never calls the
+# upstream nor stores anything). The proxy is not pinned: it runs as it would in production.
+
+restart_probe() { # -> prints X-Rewrite-Cache of an only-if-cached lane call of the paraphrase (empty when not up)
+  curl -sS -m 30 -o /dev/null -D - -H 'Content-Type: application/json' -H 'Authorization: Bearer sk-bench-tenant' \
+    -H 'Cache-Control: only-if-cached' --data-binary "$(chat_body "$paraphrase")" \
+    "http://127.0.0.1:$proxy_port/lane/draft/v1/chat/completions" 2>/dev/null \
+    | tr -d '\r' | awk -F': ' 'tolower($1)=="x-rewrite-cache"{print $2}'
+}
+
+restart_stop() { # pid seconds: SIGTERM, then wait for the graceful stop (the final save) before anything harsher
+  kill -TERM "$1" 2>/dev/null || return 0
+  for _ in $(seq $(($2 * 10))); do kill -0 "$1" 2>/dev/null || break; sleep 0.1; done
+  stop_tracked "$1"
+}
+
+restart_once() { # phase args... -> sets restart_ready[phase], restart_hit[phase]
+  local phase=$1 t0 now got="" before; shift
+  before=$(loadavg)
+  t0=$(date +%s.%N)
+  env "${proxy_env[@]}" "$proxy_bin" serve --urls "http://127.0.0.1:$proxy_port" \
+    "--Upstream:BaseUrl=http://127.0.0.1:$upstream_port/v1" "--Store:Path=$restart_dir/cache.db" "${proxy_args[@]}" "$@" \
+    >"$restart_dir/proxy-$phase.log" 2>&1 &
+  proxy_pid=$!; pids+=($proxy_pid)
+  until curl -fsS -o /dev/null "http://127.0.0.1:$proxy_port/readyz" 2>/dev/null; do
+    kill -0 "$proxy_pid" 2>/dev/null || { echo "bench.sh: the proxy exited:" >&2; tail "$restart_dir/proxy-$phase.log" >&2; exit 1; }
+    sleep 0.05
+  done
+  restart_ready[$phase]=$(awk -v a="$t0" -v b="$(date +%s.%N)" 'BEGIN{printf "%.2f", b-a}')
+  while [ "$got" != hit-semantic ]; do
+    got=$(restart_probe)
+    now=$(date +%s.%N)
+    if awk -v a="$t0" -v b="$now" -v m="$restart_limit" 'BEGIN{exit !(b-a > m)}'; then
+      echo "bench.sh: no semantic hit within $restart_limit s ($phase; last X-Rewrite-Cache '$got')" >&2; exit 1
+    fi
+    [ "$got" = hit-semantic ] || sleep 0.25
+  done
+  restart_hit[$phase]=$(awk -v a="$t0" -v b="$now" 'BEGIN{printf "%.2f", b-a}')
+  printf '  %-9s ready %7s s   first semantic hit %8s s   load %s -> %s\n' "$phase" "${restart_ready[$phase]}" \
+    "${restart_hit[$phase]}" "$before" "$(loadavg)"
+}
+
+run_restart() { # entries
+  local n=${1:-100000}
+  declare -gA restart_ready restart_hit
+  restart_dir="$work/restart"
+  restart_limit=${BENCH_RESTART_LIMIT:-3600}
+  local keep=("--Store:MaxEntries=$((n + 1000))" "--Store:IndexSnapshotPath=$restart_dir/cache.db.index")
+  machine
+  echo "restart: $n entries in one scope; snapshot $restart_dir/cache.db.index"
+  start_upstream
+  proxy_pin=(env)
+  start_proxy restart "${keep[@]}"
+  expect_cache "$(chat_body "$question")" miss
+  restart_stop "$proxy_pid" 60
+  rm -f "$restart_dir/cache.db.index"
+  echo "  seeding $((n - 1)) synthetic entries (load $(loadavg))"
+  dotnet "$hits_dll" seed-store "$restart_dir/cache.db" "$n" | sed 's/^/  /'
+  restart_once rebuild "${keep[@]}"
+  # The rebuilt index is saved once rebuilt; the graceful stop saves only what changed since.
+  for _ in $(seq 600); do grep -q 'index snapshot saved' "$restart_dir/proxy-rebuild.log" && break; sleep 1; done
+  restart_stop "$proxy_pid" 600
+  restart_once snapshot "${keep[@]}"
+  restart_stop "$proxy_pid" 600
+  echo "  the proxy's own lines:"
+  grep -h -E 'index (rebuilt|loaded|snapshot)|not used' "$restart_dir"/proxy-*.log | sed 's/^/    /'
+  echo "  snapshot file: $(stat -c %s "$restart_dir/cache.db.index") bytes, mode $(stat -c %a "$restart_dir/cache.db.index")"
+  fig[restart_n]=$n
+  fig[restart_floor]=${restart_ready[snapshot]}
+  fig[restart_snapshot]=${restart_hit[snapshot]}
+  fig[restart_rebuild]=${restart_hit[rebuild]}
+}

@@ -550,9 +550,9 @@ summary() {
       "${fig[hit_bare2nospin_p50]}" "$(ratio "${fig[hit_semantic_p50]}" "${fig[hit_bare2nospin_p50]}")"
   fi
   if has restart_snapshot; then
-    printf '| restart with %s entries: first semantic hit with the snapshot (ready at %s s) | %s s | ≤ 30 s | %s |\n' "${fig[restart_n]}" \
+    printf '| restart with %s entries (#14): first semantic hit with the snapshot (ready at %s s) | %s s | ≤ 30 s | %s |\n' "${fig[restart_n]}" \
       "${fig[restart_floor]}" "${fig[restart_snapshot]}" "$(verdict "${fig[restart_snapshot]}" '<=' 30)"
-    printf '| restart: first semantic hit, snapshot / rebuild (%s s) | %s | | |\n' "${fig[restart_rebuild]}" \
+    has restart_rebuild && printf '| restart: first semantic hit, snapshot / rebuild (%s s) | %s | | |\n' "${fig[restart_rebuild]}" \
       "$(ratio "${fig[restart_snapshot]}" "${fig[restart_rebuild]}")"
   fi
   if has pass_ratio; then

@@ -7,6 +7,11 @@
 # 2. `RewriteProxy.Benchmarks seed-store` adds entries - 1 synthetic entries to the same scope through the store's API.
 # 3. Start with no snapshot: the index is rebuilt from the store (the graph built from scratch), then saved.
 # 4. Stop gracefully, start again: the index is loaded from the snapshot and caught up from the store.
+# 5. Start once more with a short Store:IndexSnapshotInterval, replace one entry (no-cache), and probe the paraphrase
+#    back to back until the interval save has finished: its log line gives how long index writers waited, the
+#    probes how long lookups took meanwhile.
+# BENCH_RESTART_REUSE=DIR starts from the store and snapshot kept (BENCH_KEEP=1) by an earlier run in DIR/restart:
+# steps 4 and 5 only, no seeding and no rebuild.
 # Each start is timed from the process's launch to /readyz (the floor: process, model, store) and to the first
 # semantic hit of the paraphrase, probed with `Cache-Control: only-if-cached` every 250 ms (a probe never calls the
 # upstream nor stores anything). The proxy is not pinned: it runs as it would in production.
@@ -50,33 +55,70 @@ restart_once() { # phase args... -> sets restart_ready[phase], restart_hit[phase
     "${restart_hit[$phase]}" "$before" "$(loadavg)"
 }
 
+restart_save() { # args...: step 5
+  local times="$restart_dir/probe-times.txt" deadline
+  restart_once save "$@" "--Store:IndexSnapshotInterval=${BENCH_RESTART_INTERVAL:-20s}"
+  # no-cache: the benchmark question is asked upstream again and its entry replaced (a change), whatever the guards say.
+  [ "$(curl -sS -o /dev/null -D - -H 'Content-Type: application/json' -H 'Authorization: Bearer sk-bench-tenant' \
+      -H 'Cache-Control: no-cache' --data-binary "$(chat_body "$question")" "http://127.0.0.1:$proxy_port/lane/draft/v1/chat/completions" \
+      | tr -d '\r' | awk -F': ' 'tolower($1)=="x-rewrite-cache"{print $2}')" = miss ] || { echo "bench.sh: the no-cache call was no miss" >&2; exit 1; }
+  : > "$times"
+  deadline=$((SECONDS + 300))
+  until grep -q 'index snapshot saved (interval)' "$restart_dir/proxy-save.log"; do
+    printf '%s ' "$(date +%s.%N)" >> "$times"
+    curl -sS -m 30 -o /dev/null -w '%{time_total}\n' -H 'Content-Type: application/json' -H 'Authorization: Bearer sk-bench-tenant' \
+      -H 'Cache-Control: only-if-cached' --data-binary "$(chat_body "$paraphrase")" \
+      "http://127.0.0.1:$proxy_port/lane/draft/v1/chat/completions" >> "$times"
+    [ $SECONDS -gt $deadline ] && { echo "bench.sh: no interval save within 300 s" >&2; exit 1; }
+  done
+  # The save's window, from its log line: it ended at the line's time and took the milliseconds it states.
+  local line end took
+  line=$(grep 'index snapshot saved (interval)' "$restart_dir/proxy-save.log" | head -1)
+  end=$(date -d "$(cut -d' ' -f1 <<< "$line")" +%s.%N)
+  took=$(sed -E 's/.* MB in ([0-9]+) ms.*/\1/' <<< "$line")
+  restart_lookups() { # during|outside -> count, median ms, max ms
+    awk -v e="$end" -v t="$took" -v w="$1" '{ s=$1; f=s+$2; inside=(f > e-t/1000 && s < e); if ((w=="during") == inside) print $2*1000 }' "$times" \
+      | sort -g | awk '{v[NR]=$1} END{ if (NR==0) print "0 - -"; else printf "%d %.1f %.1f\n", NR, (NR%2 ? v[(NR+1)/2] : (v[NR/2]+v[NR/2+1])/2), v[NR] }'
+  }
+  read -r n_in med_in max_in <<< "$(restart_lookups during)"
+  read -r n_out med_out max_out <<< "$(restart_lookups outside)"
+  printf '  semantic-hit lookups back to back: during the %s ms save %s, median %s ms, max %s ms; before it %s, median %s ms, max %s ms   load %s\n' \
+    "$took" "$n_in" "$med_in" "$max_in" "$n_out" "$med_out" "$max_out" "$(loadavg)"
+  restart_stop "$proxy_pid" 600
+}
+
 run_restart() { # entries
   local n=${1:-100000}
   declare -gA restart_ready restart_hit
-  restart_dir="$work/restart"
+  restart_dir="${BENCH_RESTART_REUSE:-$work}/restart"
   restart_limit=${BENCH_RESTART_LIMIT:-3600}
   local keep=("--Store:MaxEntries=$((n + 1000))" "--Store:IndexSnapshotPath=$restart_dir/cache.db.index")
   machine
   echo "restart: $n entries in one scope; snapshot $restart_dir/cache.db.index"
   start_upstream
   proxy_pin=(env)
-  start_proxy restart "${keep[@]}"
-  expect_cache "$(chat_body "$question")" miss
-  restart_stop "$proxy_pid" 60
-  rm -f "$restart_dir/cache.db.index"
-  echo "  seeding $((n - 1)) synthetic entries (load $(loadavg))"
-  dotnet "$hits_dll" seed-store "$restart_dir/cache.db" "$n" | sed 's/^/  /'
-  restart_once rebuild "${keep[@]}"
-  # The rebuilt index is saved once rebuilt; the graceful stop saves only what changed since.
-  for _ in $(seq 600); do grep -q 'index snapshot saved' "$restart_dir/proxy-rebuild.log" && break; sleep 1; done
-  restart_stop "$proxy_pid" 600
+  if [ -n "${BENCH_RESTART_REUSE:-}" ]; then
+    echo "  reusing the store and snapshot in $restart_dir"
+  else
+    start_proxy restart "${keep[@]}"
+    expect_cache "$(chat_body "$question")" miss
+    restart_stop "$proxy_pid" 60
+    rm -f "$restart_dir/cache.db.index"
+    echo "  seeding $((n - 1)) synthetic entries (load $(loadavg))"
+    dotnet "$hits_dll" seed-store "$restart_dir/cache.db" "$n" | sed 's/^/  /'
+    restart_once rebuild "${keep[@]}"
+    # The rebuilt index is saved once rebuilt; the graceful stop saves only what changed since.
+    for _ in $(seq 600); do grep -q 'index snapshot saved' "$restart_dir/proxy-rebuild.log" && break; sleep 1; done
+    restart_stop "$proxy_pid" 600
+  fi
   restart_once snapshot "${keep[@]}"
   restart_stop "$proxy_pid" 600
+  restart_save "${keep[@]}"
   echo "  the proxy's own lines:"
   grep -h -E 'index (rebuilt|loaded|snapshot)|not used' "$restart_dir"/proxy-*.log | sed 's/^/    /'
   echo "  snapshot file: $(stat -c %s "$restart_dir/cache.db.index") bytes, mode $(stat -c %a "$restart_dir/cache.db.index")"
   fig[restart_n]=$n
   fig[restart_floor]=${restart_ready[snapshot]}
   fig[restart_snapshot]=${restart_hit[snapshot]}
-  fig[restart_rebuild]=${restart_hit[rebuild]}
+  fig[restart_rebuild]=${restart_hit[rebuild]:-}
 }

@@ -63,7 +63,8 @@ public sealed class IndexSnapshotTests : IDisposable
     {
         var index = new VectorIndex(Dims, switchSize, hnsw ?? Narrow);
         using var reader = IndexSnapshotReader.Open(path);
-        reader.Check(Model, Dims, Store, index.Hnsw);
+        reader.Check(Model, Dims, index.Hnsw);
+        IndexSnapshotReader.CheckStore(reader.Header, Store);
         index.Restore(reader.ReadScopes(index.Hnsw));
         return index;
     }
@@ -288,11 +289,12 @@ public sealed class IndexSnapshotTests : IDisposable
         IndexSnapshotWriter.Save(original, new SnapshotOrigin(Model, Store, 1), SnapshotPath);
         using var reader = IndexSnapshotReader.Open(SnapshotPath);
 
-        var refused = Assert.Throws<SnapshotRejectedException>(() => reader.Check(
-            what == "model" ? "another-model" : Model,
-            what == "dimensions" ? 768 : Dims,
-            what == "store" ? "store-0002" : Store,
-            what == "graphs" ? Narrow with { Connectivity = 32 } : Narrow));
+        var refused = Assert.Throws<SnapshotRejectedException>(() =>
+        {
+            reader.Check(what == "model" ? "another-model" : Model, what == "dimensions" ? 768 : Dims,
+                what == "graphs" ? Narrow with { Connectivity = 32 } : Narrow);
+            IndexSnapshotReader.CheckStore(reader.Header, what == "store" ? "store-0002" : Store);
+        });
 
         Assert.Equal(reason, refused.Reason);
     }

@@ -10,6 +10,8 @@
 # 5. Start once more with a short Store:IndexSnapshotInterval, replace one entry (no-cache), and probe the paraphrase
 #    back to back until the interval save has finished: its log line gives how long index writers waited, the
 #    probes how long lookups took meanwhile.
+# BENCH_RESTART_COLD=1 drops the store's and the snapshot's pages from the page cache before each start (dd
+# iflag=nocache, these files only): a restart after a reboot, or on a new node with the volume attached.
 # BENCH_RESTART_REUSE=DIR starts from the store and snapshot kept (BENCH_KEEP=1) by an earlier run in DIR/restart:
 # steps 4 and 5 only, no seeding and no rebuild.
 # Each start is timed from the process's launch to /readyz (the floor: process, model, store) and to the first
@@ -31,6 +33,12 @@ restart_stop() { # pid seconds: SIGTERM, then wait for the graceful stop (the fi
 
 restart_once() { # phase args... -> sets restart_ready[phase], restart_hit[phase]
   local phase=$1 t0 now got="" before; shift
+  if [ "${BENCH_RESTART_COLD:-0}" = 1 ]; then
+    local f
+    for f in "$restart_dir"/cache.db "$restart_dir"/cache.db-wal "$restart_dir"/cache.db.index; do
+      [ -f "$f" ] && dd if="$f" iflag=nocache count=0 status=none
+    done
+  fi
   before=$(loadavg)
   t0=$(date +%s.%N)
   env "${proxy_env[@]}" "$proxy_bin" serve --urls "http://127.0.0.1:$proxy_port" \
@@ -56,34 +64,39 @@ restart_once() { # phase args... -> sets restart_ready[phase], restart_hit[phase
 }
 
 restart_save() { # args...: step 5
-  local times="$restart_dir/probe-times.txt" deadline
+  local times="$restart_dir/probe-times.txt" log="$restart_dir/proxy-save.log" deadline body
   restart_once save "$@" "--Store:IndexSnapshotInterval=${BENCH_RESTART_INTERVAL:-20s}"
   # no-cache: the benchmark question is asked upstream again and its entry replaced (a change), whatever the guards say.
   [ "$(curl -sS -o /dev/null -D - -H 'Content-Type: application/json' -H 'Authorization: Bearer sk-bench-tenant' \
       -H 'Cache-Control: no-cache' --data-binary "$(chat_body "$question")" "http://127.0.0.1:$proxy_port/lane/draft/v1/chat/completions" \
       | tr -d '\r' | awk -F': ' 'tolower($1)=="x-rewrite-cache"{print $2}')" = miss ] || { echo "bench.sh: the no-cache call was no miss" >&2; exit 1; }
   : > "$times"
+  body=$(chat_body "$paraphrase")
   deadline=$((SECONDS + 300))
-  until grep -q 'index snapshot saved (interval)' "$restart_dir/proxy-save.log"; do
-    printf '%s ' "$(date +%s.%N)" >> "$times"
+  until grep -q 'index snapshot saved (interval)' "$log"; do
     curl -sS -m 30 -o /dev/null -w '%{time_total}\n' -H 'Content-Type: application/json' -H 'Authorization: Bearer sk-bench-tenant' \
-      -H 'Cache-Control: only-if-cached' --data-binary "$(chat_body "$paraphrase")" \
-      "http://127.0.0.1:$proxy_port/lane/draft/v1/chat/completions" >> "$times"
+      -H 'Cache-Control: only-if-cached' --data-binary "$body" "http://127.0.0.1:$proxy_port/lane/draft/v1/chat/completions" >> "$times"
     [ $SECONDS -gt $deadline ] && { echo "bench.sh: no interval save within 300 s" >&2; exit 1; }
   done
-  # The save's window, from its log line: it ended at the line's time and took the milliseconds it states.
-  local line end took
-  line=$(grep 'index snapshot saved (interval)' "$restart_dir/proxy-save.log" | head -1)
-  end=$(date -d "$(cut -d' ' -f1 <<< "$line")" +%s.%N)
+  # The save's window, from its log line: it ended at the line's time and took the milliseconds it states. Lookups
+  # are timed by the proxy's own request log (ISO times in UTC compare as text), beside the client's view.
+  local line end_iso took start_iso
+  line=$(grep 'index snapshot saved (interval)' "$log" | head -1)
+  end_iso=$(cut -d' ' -f1 <<< "$line")
   took=$(sed -E 's/.* MB in ([0-9]+) ms.*/\1/' <<< "$line")
-  restart_lookups() { # during|outside -> count, median ms, max ms
-    awk -v e="$end" -v t="$took" -v w="$1" '{ s=$1; f=s+$2; inside=(f > e-t/1000 && s < e); if ((w=="during") == inside) print $2*1000 }' "$times" \
+  start_iso=$(date -u -d "@$(awk -v e="$(date -d "$end_iso" +%s.%N)" -v t="$took" 'BEGIN{printf "%.3f", e - t/1000}')" +%Y-%m-%dT%H:%M:%S.%3NZ)
+  restart_lookups() { # during|before -> count, median ms, max ms of the proxy's semantic-hit lookups
+    awk -v s="$start_iso" -v e="$end_iso" -v w="$1" '/RequestLog/ && /cache=hit-semantic/ {
+        inside = ($1 >= s && $1 <= e); if ((w == "during") == inside && (w == "during" || $1 < s)) for (i = 1; i <= NF; i++) if ($i == "ms") print $(i-1) }' "$log" \
       | sort -g | awk '{v[NR]=$1} END{ if (NR==0) print "0 - -"; else printf "%d %.1f %.1f\n", NR, (NR%2 ? v[(NR+1)/2] : (v[NR/2]+v[NR/2+1])/2), v[NR] }'
   }
+  local n_in med_in max_in n_out med_out max_out
   read -r n_in med_in max_in <<< "$(restart_lookups during)"
-  read -r n_out med_out max_out <<< "$(restart_lookups outside)"
-  printf '  semantic-hit lookups back to back: during the %s ms save %s, median %s ms, max %s ms; before it %s, median %s ms, max %s ms   load %s\n' \
-    "$took" "$n_in" "$med_in" "$max_in" "$n_out" "$med_out" "$max_out" "$(loadavg)"
+  read -r n_out med_out max_out <<< "$(restart_lookups before)"
+  printf '  semantic-hit lookups back to back, as the proxy timed them: during the %s ms save %s, median %s ms, max %s ms; before it %s, median %s ms, max %s ms\n' \
+    "$took" "$n_in" "$med_in" "$max_in" "$n_out" "$med_out" "$max_out"
+  printf '  the same lookups as the client saw them (curl, all): %s, median %s ms, max %s ms   load %s\n' "$(wc -l < "$times")" \
+    "$(awk '{print $1*1000}' "$times" | median)" "$(awk '{print $1*1000}' "$times" | sort -g | tail -1)" "$(loadavg)"
   restart_stop "$proxy_pid" 600
 }
 

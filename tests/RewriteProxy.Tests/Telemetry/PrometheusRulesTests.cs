@@ -44,6 +44,17 @@ public sealed class PrometheusRulesTests
     }
 
     [Fact]
+    public void Replicas_scrape_config_passes_promtool_check_config()
+    {
+        // The Prometheus of config/replicas/compose.yaml: one scrape target per replica through DNS service discovery.
+        var (exit, output) = PromTools.Run(PromTools.PromtoolPath, "check", "config", Path.Combine(ConfigDir, "prometheus.replicas.yml"));
+
+        Assert.True(exit == 0, output);
+        Assert.Contains("2 rule files found", output);
+        Assert.DoesNotContain("FAILED", output);
+    }
+
+    [Fact]
     public void Rule_unit_tests_pass_under_promtool_test_rules()
     {
         var files = RuleTestFiles(ConfigDir);

@@ -42,6 +42,7 @@ public sealed class MetricsExpositionTests(MetricsWorkloadFixture run, ITestOutp
         { "rewriteproxy_entries", "gauge", "lane" },
         { "rewriteproxy_tokens_saved_total", "counter", "lane" },
         { "rewriteproxy_coalesced_total", "counter", "lane" },
+        { "rewriteproxy_claim_waits_total", "counter", "lane,outcome" },
         { "rewriteproxy_fail_open_total", "counter", "reason" },
         { "rewriteproxy_lane_max_drift", "gauge", "lane" },
     };

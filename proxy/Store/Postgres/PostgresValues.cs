@@ -1,0 +1,81 @@
+using System.Runtime.InteropServices;
+using System.Security.Cryptography;
+using System.Text;
+using System.Text.Json;
+using RewriteProxy.Cache;
+
+namespace RewriteProxy.Store.Postgres;
+
+/// <summary>How values cross into PostgreSQL and back: times, vectors, texts and the hashes that key long texts.</summary>
+public static class PostgresValues
+{
+    /// <summary>Times are kept to the millisecond, as the SQLite store keeps them, so both stores give back equal times.</summary>
+    public static DateTime Time(DateTimeOffset t) => DateTime.UnixEpoch.AddMilliseconds(t.ToUnixTimeMilliseconds());
+
+    public static DateTimeOffset Time(DateTime utc) => new(DateTime.SpecifyKind(utc, DateTimeKind.Utc));
+
+    /// <summary>float32 values in the machine's (little-endian) order, as the SQLite store keeps them.</summary>
+    public static byte[] Vector(float[] vector) => MemoryMarshal.AsBytes(vector.AsSpan()).ToArray();
+
+    public static float[] Vector(byte[] bytes) => MemoryMarshal.Cast<byte, float>(bytes).ToArray();
+
+    /// <summary>
+    /// PostgreSQL's text cannot hold U+0000, which JSON lets a client send; it becomes U+FFFD, the same way on writes
+    /// and on lookups, so such a question is still found again.
+    /// </summary>
+    public static string Text(string text) => text.Contains('\0') ? text.Replace('\0', '\uFFFD') : text;
+
+    public static string? TextOrNull(string? text) => text is null ? null : Text(text);
+
+    /// <summary>SHA-256 of a (cleaned) text: the unique key of a normalised question within its scope.</summary>
+    public static byte[] Hash(string text) => SHA256.HashData(Encoding.UTF8.GetBytes(Text(text)));
+
+    /// <summary>The unique key of a template's prefix and suffix (a NUL between them cannot occur in cleaned text).</summary>
+    public static byte[] Hash(string prefix, string suffix) => Hash(Text(prefix) + "\0" + Text(suffix));
+
+    public static string Scores(EntryScores scores) => JsonSerializer.Serialize(scores);
+
+    /// <summary>A damaged scores value costs the hit its drift headers, never the hit itself.</summary>
+    public static EntryScores Scores(string json)
+    {
+        try
+        {
+            return JsonSerializer.Deserialize<EntryScores>(json) ?? EntryScores.None;
+        }
+        catch (JsonException)
+        {
+            return EntryScores.None;
+        }
+    }
+}
+
+/// <summary>An <c>entries</c> row as PostgreSQL gives it back (times as UTC DateTime, scores as JSON text).</summary>
+public sealed record PostgresEntryRow
+{
+    public long Id { get; init; }
+    public string ScopeKey { get; init; } = "";
+    public string PartitionHash { get; init; } = "";
+    public string Lane { get; init; } = "";
+    public string Question { get; init; } = "";
+    public string Normalized { get; init; } = "";
+    public string Content { get; init; } = "";
+    public string Scores { get; init; } = "{}";
+    public string? ResponseModel { get; init; }
+    public string? ModelId { get; init; }
+    public long PromptTokens { get; init; }
+    public long CompletionTokens { get; init; }
+    public DateTime Created { get; init; }
+    public DateTime LastHit { get; init; }
+    public long HitCount { get; init; }
+
+    /// <summary>The columns, named for this record.</summary>
+    public const string Columns = """
+        id AS Id, scope_key AS ScopeKey, partition_hash AS PartitionHash, lane AS Lane, question AS Question,
+        normalized AS Normalized, content AS Content, scores::text AS Scores, response_model AS ResponseModel, model_id AS ModelId,
+        prompt_tokens AS PromptTokens, completion_tokens AS CompletionTokens, created AS Created, last_hit AS LastHit,
+        hit_count AS HitCount
+        """;
+
+    public StoredEntry Decode() => new(Id, ScopeKey, PartitionHash, Lane, Question, Normalized, Content, PostgresValues.Scores(Scores),
+        ResponseModel, ModelId, PromptTokens, CompletionTokens, PostgresValues.Time(Created), PostgresValues.Time(LastHit), HitCount);
+}

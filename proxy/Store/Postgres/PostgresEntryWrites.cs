@@ -36,17 +36,20 @@ public static class PostgresEntryWrites
                LIMIT (SELECT greatest(value - @maxEntries, 0) FROM counters WHERE name = 'entries'))
         """);
 
-    /// <summary>Which entries a purge deletes (and <see cref="IRewriteStore.CountMatchingAsync"/> counts): written once.</summary>
+    /// <summary>
+    /// Which entries a purge deletes (and <see cref="IRewriteStore.CountMatchingAsync"/> counts): written once. The
+    /// casts type the parameters that may be null, which PostgreSQL cannot infer from <c>IS NULL</c>.
+    /// </summary>
     public const string PurgeCondition = """
-        (@Lane IS NULL OR lane = @Lane) AND (@PartitionHash IS NULL OR partition_hash = @PartitionHash)
-        AND (@before IS NULL OR created < @before) AND (@Id IS NULL OR id = @Id)
+        (@Lane::text IS NULL OR lane = @Lane) AND (@PartitionHash::text IS NULL OR partition_hash = @PartitionHash)
+        AND (@before::timestamptz IS NULL OR created < @before) AND (@Id::bigint IS NULL OR id = @Id)
         """;
 
     /// <summary>The templates of a purged lane or partition (not of a purge by id), learned before the age limit.</summary>
     const string PurgeTemplates = """
         DELETE FROM templates
-        WHERE @Id IS NULL AND (@Lane IS NULL OR lane = @Lane) AND (@PartitionHash IS NULL OR partition_hash = @PartitionHash)
-          AND (@before IS NULL OR learned_at < @before)
+        WHERE @Id::bigint IS NULL AND (@Lane::text IS NULL OR lane = @Lane) AND (@PartitionHash::text IS NULL OR partition_hash = @PartitionHash)
+          AND (@before::timestamptz IS NULL OR learned_at < @before)
         """;
 
     const string Upsert = """

@@ -33,8 +33,8 @@ public sealed partial class PostgresRewriteStore
         EnsureOpen();
         var rows = await _connector.RunAsync("listing entries", c => c.QueryAsync<PostgresEntryRow>(new CommandDefinition($"""
             SELECT {PostgresEntryRow.Columns} FROM entries
-            WHERE (@Lane IS NULL OR lane = @Lane) AND (@PartitionHash IS NULL OR partition_hash = @PartitionHash)
-              AND (@contains IS NULL OR strpos(normalized, @contains) > 0)
+            WHERE (@Lane::text IS NULL OR lane = @Lane) AND (@PartitionHash::text IS NULL OR partition_hash = @PartitionHash)
+              AND (@contains::text IS NULL OR strpos(normalized, @contains) > 0)
             ORDER BY last_hit DESC, id DESC LIMIT @Limit
             """, new
         {
@@ -98,7 +98,7 @@ public sealed partial class PostgresRewriteStore
         EnsureOpen();
         var rows = _connector.StreamAsync("reading events", new CommandDefinition("""
             SELECT at, lane, partition_hash, kind, question, candidate, score, verdict, reason FROM events
-            WHERE (@lane IS NULL OR lane = @lane) AND at >= @since ORDER BY at, id
+            WHERE (@lane::text IS NULL OR lane = @lane) AND at >= @since ORDER BY at, id
             """, new { lane, since = PostgresValues.Time(since) }, commandTimeout: PostgresConnector.LongCommandSeconds,
             flags: CommandFlags.None, cancellationToken: cancel),
             r => new EventRow(PostgresValues.Time(r.GetDateTime(0)), r.GetString(1), r.GetString(2), r.GetString(3), r.GetString(4),

@@ -47,6 +47,8 @@ public sealed class PostgresConnector : IAsyncDisposable
         if (!Names(connectionString, "Command Timeout")) builder.CommandTimeout = DefaultCommandSeconds;
         if (!Names(connectionString, "Cancellation Timeout")) builder.CancellationTimeout = DefaultCancellationMilliseconds;
         Location = Describe(builder);
+        ConnectTimeout = TimeSpan.FromSeconds(builder.Timeout);
+        CommandTimeout = TimeSpan.FromSeconds(builder.CommandTimeout);
         _source = NpgsqlDataSource.Create(builder);
     }
 
@@ -54,6 +56,12 @@ public sealed class PostgresConnector : IAsyncDisposable
     public string Location { get; }
 
     public PostgresCircuit Circuit { get; } = new();
+
+    /// <summary>How long opening a connection may take (the connection string's <c>Timeout</c>, or <see cref="DefaultConnectSeconds"/>).</summary>
+    public TimeSpan ConnectTimeout { get; }
+
+    /// <summary>How long a request-path command may take (<c>Command Timeout</c>, or <see cref="DefaultCommandSeconds"/>).</summary>
+    public TimeSpan CommandTimeout { get; }
 
     /// <summary>Reads a connection string as Npgsql does; a malformed one is an <see cref="ArgumentException"/> that names the problem, not the string.</summary>
     public static NpgsqlConnectionStringBuilder Parse(string connectionString)
@@ -93,21 +101,47 @@ public sealed class PostgresConnector : IAsyncDisposable
     public ValueTask<NpgsqlConnection> OpenAsync(CancellationToken cancel) => _source.OpenConnectionAsync(cancel);
 
     /// <summary>
-    /// Runs <paramref name="work"/> on a pooled connection through the circuit: fails fast while it is open, and turns
-    /// a database failure into a <see cref="StoreException"/> saying <paramref name="what"/> failed.
+    /// The longest a request-path call may take, whatever the driver does: opening a connection plus one command.
+    /// (A frozen server made Npgsql give up only after three times the command timeout: it also waits on its
+    /// cancellation request.) A call cut off here goes on in the background and its late outcome is dropped.
     /// </summary>
-    public async Task<T> RunAsync<T>(string what, Func<NpgsqlConnection, Task<T>> work, CancellationToken cancel)
+    public TimeSpan RequestBound => ConnectTimeout + CommandTimeout;
+
+    /// <summary>
+    /// Runs request-path <paramref name="work"/> on a pooled connection through the circuit, within
+    /// <see cref="RequestBound"/>: fails fast while the circuit is open, and turns a database failure or a call
+    /// over its bound into a <see cref="StoreException"/> saying <paramref name="what"/> failed.
+    /// </summary>
+    public Task<T> RunAsync<T>(string what, Func<NpgsqlConnection, Task<T>> work, CancellationToken cancel) =>
+        RunAsync(what, work, RequestBound, cancel);
+
+    /// <summary>
+    /// Like <see cref="RunAsync{T}(string, Func{NpgsqlConnection, Task{T}}, CancellationToken)"/> for work off the
+    /// request path (writes in the background, sweeps, migrations, operator reads): bounded by its commands' own
+    /// (long) timeouts only.
+    /// </summary>
+    public Task<T> RunLongAsync<T>(string what, Func<NpgsqlConnection, Task<T>> work, CancellationToken cancel) =>
+        RunAsync(what, work, Timeout.InfiniteTimeSpan, cancel);
+
+    async Task<T> RunAsync<T>(string what, Func<NpgsqlConnection, Task<T>> work, TimeSpan bound, CancellationToken cancel)
     {
         if (!Circuit.TryEnter()) throw Unreachable(what);
+        var attempt = AttemptAsync(work, cancel);
         try
         {
-            await using var connection = await _source.OpenConnectionAsync(cancel);
-            var result = await work(connection);
+            var result = await attempt.WaitAsync(bound, cancel);
             Circuit.Succeeded();
             return result;
         }
+        catch (TimeoutException) when (!attempt.IsCompleted)
+        {
+            Forget(attempt);
+            Circuit.Failed();
+            throw new StoreException($"{what}: {Location} did not answer within {bound.TotalSeconds:0.#} s");
+        }
         catch (OperationCanceledException) when (cancel.IsCancellationRequested)
         {
+            Forget(attempt);
             Circuit.Abandoned();
             throw;
         }
@@ -117,9 +151,19 @@ public sealed class PostgresConnector : IAsyncDisposable
         }
     }
 
+    async Task<T> AttemptAsync<T>(Func<NpgsqlConnection, Task<T>> work, CancellationToken cancel)
+    {
+        await using var connection = await _source.OpenConnectionAsync(cancel);
+        return await work(connection);
+    }
+
+    /// <summary>Observes the late end of a call given up on, so its failure is not an unobserved task exception.</summary>
+    static void Forget(Task attempt) =>
+        attempt.ContinueWith(t => _ = t.Exception, CancellationToken.None, TaskContinuationOptions.OnlyOnFaulted, TaskScheduler.Default);
+
     /// <summary>
     /// Streams the rows of a query, one connection held while the caller enumerates; failures (opening, or midway)
-    /// become <see cref="StoreException"/>s like <see cref="RunAsync{T}"/>'s.
+    /// become <see cref="StoreException"/>s like <see cref="RunLongAsync{T}"/>'s.
     /// </summary>
     public async IAsyncEnumerable<T> StreamAsync<T>(string what, CommandDefinition command, Func<DbDataReader, T> map,
         [EnumeratorCancellation] CancellationToken cancel)

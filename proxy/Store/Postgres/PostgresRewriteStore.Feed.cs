@@ -14,7 +14,7 @@ public sealed partial class PostgresRewriteStore
     public async Task<VectorLoad> ReadVectorsAsync(string modelId, CancellationToken cancel)
     {
         EnsureOpen();
-        return await _connector.RunAsync("reading vectors", async c =>
+        return await _connector.RunLongAsync("reading vectors", async c =>
         {
             await using var tx = await c.BeginTransactionAsync(IsolationLevel.RepeatableRead, cancel);
             var sequence = await c.ExecuteScalarAsync<long>(new CommandDefinition("""

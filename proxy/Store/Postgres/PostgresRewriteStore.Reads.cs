@@ -31,7 +31,7 @@ public sealed partial class PostgresRewriteStore
     public async Task<IReadOnlyList<StoredEntry>> ListAsync(EntryQuery query, CancellationToken cancel)
     {
         EnsureOpen();
-        var rows = await _connector.RunAsync("listing entries", c => c.QueryAsync<PostgresEntryRow>(new CommandDefinition($"""
+        var rows = await _connector.RunLongAsync("listing entries", c => c.QueryAsync<PostgresEntryRow>(new CommandDefinition($"""
             SELECT {PostgresEntryRow.Columns} FROM entries
             WHERE (@Lane::text IS NULL OR lane = @Lane) AND (@PartitionHash::text IS NULL OR partition_hash = @PartitionHash)
               AND (@contains::text IS NULL OR strpos(normalized, @contains) > 0)
@@ -52,7 +52,7 @@ public sealed partial class PostgresRewriteStore
     public async Task<IReadOnlyList<TemplateRow>> TemplatesAsync(DateTimeOffset minLearned, CancellationToken cancel)
     {
         EnsureOpen();
-        var rows = await _connector.RunAsync("reading templates", c => c.QueryAsync<TemplateRecord>(new CommandDefinition(
+        var rows = await _connector.RunLongAsync("reading templates", c => c.QueryAsync<TemplateRecord>(new CommandDefinition(
             $"SELECT {TemplateColumns} FROM templates WHERE learned_at >= @min ORDER BY learned_at",
             new { min = PostgresValues.Time(minLearned) }, commandTimeout: PostgresConnector.LongCommandSeconds, cancellationToken: cancel)), cancel);
         return rows.Select(r => r.Decode()).ToList();
@@ -64,7 +64,7 @@ public sealed partial class PostgresRewriteStore
     public async Task<StoreStats> StatsAsync(CancellationToken cancel)
     {
         EnsureOpen();
-        return await _connector.RunAsync("reading stats", async c =>
+        return await _connector.RunLongAsync("reading stats", async c =>
         {
             CommandDefinition Command(string sql) => new(sql, commandTimeout: PostgresConnector.LongCommandSeconds, cancellationToken: cancel);
             var entries = (await c.QueryAsync<(string Lane, long N)>(Command("SELECT lane, count(*) FROM entries GROUP BY lane")))

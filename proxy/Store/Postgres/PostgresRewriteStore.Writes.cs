@@ -34,7 +34,7 @@ public sealed partial class PostgresRewriteStore
     {
         if (filter.IsEmpty) throw new ArgumentException("a purge needs at least one of lane, partition, age or id");
         EnsureWritable();
-        var ids = await _connector.RunAsync("purging entries", async c =>
+        var ids = await _connector.RunLongAsync("purging entries", async c =>
         {
             await using var tx = await c.BeginTransactionAsync(cancel);
             var gone = await PostgresEntryWrites.PurgeAsync(c, tx, filter, cancel);
@@ -49,7 +49,7 @@ public sealed partial class PostgresRewriteStore
     {
         if (filter.IsEmpty) throw new ArgumentException("a purge needs at least one of lane, partition, age or id");
         EnsureOpen();
-        return await _connector.RunAsync("counting entries", c => c.ExecuteScalarAsync<long>(new CommandDefinition(
+        return await _connector.RunLongAsync("counting entries", c => c.ExecuteScalarAsync<long>(new CommandDefinition(
             $"SELECT count(*) FROM entries WHERE {PostgresEntryWrites.PurgeCondition}", PostgresEntryWrites.PurgeParameters(filter),
             commandTimeout: PostgresConnector.LongCommandSeconds, cancellationToken: cancel)), cancel);
     }
@@ -95,7 +95,7 @@ public sealed partial class PostgresRewriteStore
     {
         var expired = 0;
         var evicted = 0;
-        await _connector.RunAsync("sweeping the store", async c =>
+        await _connector.RunLongAsync("sweeping the store", async c =>
         {
             var command = new CommandDefinition("SELECT pg_try_advisory_lock(@key)", new { key = PostgresLocks.Sweep }, cancellationToken: cancel);
             if (!await c.ExecuteScalarAsync<bool>(command)) return 0;

@@ -22,6 +22,7 @@ public sealed partial class PostgresRewriteStore : IRewriteStore
     PostgresListener? _listener;
     StoreAccess? _access;
     string? _storeId;
+    int _disposed;
 
     /// <summary>
     /// The connection string is in Npgsql's format; its <c>Timeout</c>, <c>Command Timeout</c> and <c>Cancellation Timeout</c>
@@ -51,7 +52,7 @@ public sealed partial class PostgresRewriteStore : IRewriteStore
     public async Task OpenAsync(StoreAccess access, CancellationToken cancel)
     {
         if (_access is not null) throw new InvalidOperationException($"{Location}: the store is already open");
-        _storeId = await _connector.RunAsync("opening the store", c => access == StoreAccess.ReadWrite
+        _storeId = await _connector.RunLongAsync("opening the store", c => access == StoreAccess.ReadWrite
             ? PostgresMigrations.MigrateAsync(c, _log, Location, cancel)
             : PostgresMigrations.CheckAsync(c, Location, cancel), cancel);
         _access = access;
@@ -84,9 +85,10 @@ public sealed partial class PostgresRewriteStore : IRewriteStore
         if (_access != StoreAccess.ReadWrite) throw new StoreException($"{Location}: the store was opened read-only");
     }
 
-    /// <summary>Stops the listener, writes what is queued (for at most a few seconds), and closes the pool.</summary>
+    /// <summary>Stops the listener, writes what is queued (for at most a few seconds), and closes the pool; once.</summary>
     public async ValueTask DisposeAsync()
     {
+        if (Interlocked.Exchange(ref _disposed, 1) == 1) return;
         if (_listener is not null) await _listener.DisposeAsync();
         if (_writer is not null) await _writer.DisposeAsync();
         await _connector.DisposeAsync();

@@ -166,7 +166,7 @@ public sealed class PostgresWriter : IAsyncDisposable
             var batch = PostgresBatch.Take(_hits, _tallies, _events, _templates, BatchSize);
             try
             {
-                await _connector.RunAsync("writing hits, tallies and events", c => batch.WriteAsync(c, _stop.Token), _stop.Token);
+                await _connector.RunLongAsync("writing hits, tallies and events", c => batch.WriteAsync(c, _stop.Token), _stop.Token);
                 _events.RemoveRange(0, batch.Events.Count);
                 _templates.RemoveRange(0, batch.Templates.Count);
                 if (_failing) _log.LogInformation("store: background writes resumed at {Location}", _connector.Location);

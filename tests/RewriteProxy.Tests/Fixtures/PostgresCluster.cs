@@ -108,6 +108,22 @@ public sealed class PostgresCluster : IAsyncLifetime
         return Task.CompletedTask;
     }
 
+    /// <summary>
+    /// Freezes the server and its backends (SIGSTOP, by the PIDs in postmaster.pid and /proc): connections stay open
+    /// and nothing answers, as with a database that hangs. <see cref="Thaw"/> lets it go on.
+    /// </summary>
+    public void Freeze() => Signal("-STOP");
+
+    public void Thaw() => Signal("-CONT");
+
+    void Signal(string signal)
+    {
+        var postmaster = int.Parse(File.ReadLines(Path.Combine(_data, "postmaster.pid")).First());
+        var children = File.ReadAllText($"/proc/{postmaster}/task/{postmaster}/children")
+            .Split(' ', StringSplitOptions.RemoveEmptyEntries);
+        Run("kill", [signal, postmaster.ToString(), .. children]);
+    }
+
     async Task StartOnFreePortAsync()
     {
         var output = "";

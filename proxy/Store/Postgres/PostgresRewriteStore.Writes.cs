@@ -10,11 +10,17 @@ public sealed partial class PostgresRewriteStore
     const int ExpiryChunk = 1_000;
 
     /// <summary>
-    /// How long changes are kept for followers to catch up. A replica away for longer (or restarted from an index
-    /// snapshot older than this) rebuilds its index from the entries. A week covers the default Store:Ttl, after
-    /// which every entry of an older snapshot has expired anyway; a change row is about 50 bytes.
+    /// Changes younger than this are kept for followers to catch up (unless <see cref="ChangesKeptAtMost"/> is reached
+    /// first): a replica or an index snapshot up to a day behind (a process stopped overnight) replays changes instead
+    /// of rebuilding. The same span as the SQLite store's.
     /// </summary>
-    internal static readonly TimeSpan ChangeRetention = TimeSpan.FromDays(7);
+    internal static readonly TimeSpan ChangesKeptFor = TimeSpan.FromHours(24);
+
+    /// <summary>
+    /// Most changes kept, whatever their age: bounds the table (some 50 bytes a row) under heavy churn; a follower
+    /// further behind than this reads more rows replaying than a rebuild of a full default store. As the SQLite store.
+    /// </summary>
+    internal const long ChangesKeptAtMost = 1_000_000;
 
     public async Task<long> AddAsync(NewEntry entry, CancellationToken cancel)
     {
@@ -72,7 +78,13 @@ public sealed partial class PostgresRewriteStore
     }
 
     /// <summary>Runs the sweep now (tests; the writer runs it every <see cref="PostgresWriter.SweepEvery"/>).</summary>
-    internal Task SweepNowAsync(CancellationToken cancel) => Sweep(cancel);
+    internal Task SweepNowAsync(CancellationToken cancel) => Sweep(ChangesKeptFor, ChangesKeptAtMost, cancel);
+
+    /// <summary>Runs the sweep now with other limits of change pruning (the contract suite's hook).</summary>
+    internal Task SweepNowAsync(TimeSpan keepChangesFor, long maxChangesKept, CancellationToken cancel) =>
+        Sweep(keepChangesFor, maxChangesKept, cancel);
+
+    Task Sweep(CancellationToken cancel) => Sweep(ChangesKeptFor, ChangesKeptAtMost, cancel);
 
     /// <summary>
     /// Expiry, eviction, retention and pruning, by queries in the database. Whichever replica's sweep gets the
@@ -91,7 +103,7 @@ public sealed partial class PostgresRewriteStore
         }
     }
 
-    async Task Sweep(CancellationToken cancel)
+    async Task Sweep(TimeSpan keepChangesFor, long maxChangesKept, CancellationToken cancel)
     {
         var expired = 0;
         var evicted = 0;
@@ -122,7 +134,8 @@ public sealed partial class PostgresRewriteStore
                     DELETE FROM events WHERE at < @eventsBefore;
                     DELETE FROM events WHERE id <= (SELECT max(id) FROM events) - @maxEvents;
                     DELETE FROM claims WHERE expires < now();
-                    WITH gone AS (DELETE FROM changes WHERE seq <= (SELECT max(seq) FROM changes WHERE at < @changesBefore) RETURNING seq)
+                    WITH gone AS (DELETE FROM changes WHERE seq <= greatest(
+                        (SELECT max(seq) FROM changes WHERE at < @changesBefore), (SELECT max(seq) FROM changes) - @maxChanges) RETURNING seq)
                     UPDATE counters SET value = greatest(value, (SELECT max(seq) FROM gone))
                     WHERE name = 'pruned_through' AND EXISTS (SELECT 1 FROM gone);
                     """, new
@@ -130,7 +143,8 @@ public sealed partial class PostgresRewriteStore
                     before = PostgresValues.Time(before),
                     eventsBefore = PostgresValues.Time(DateTimeOffset.UtcNow - _events.Retention),
                     maxEvents = _events.MaxRows,
-                    changesBefore = PostgresValues.Time(DateTimeOffset.UtcNow - ChangeRetention),
+                    changesBefore = PostgresValues.Time(DateTimeOffset.UtcNow - keepChangesFor),
+                    maxChanges = maxChangesKept,
                 }, commandTimeout: PostgresConnector.LongCommandSeconds, cancellationToken: cancel));
             }
             finally

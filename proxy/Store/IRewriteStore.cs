@@ -122,10 +122,13 @@ public sealed record VectorLoad(IReadOnlyList<IndexRow> Rows, long Sequence);
 /// <summary>What happened to an entry: stored or replaced (with its vector when it has one), or deleted.</summary>
 public enum ChangeKind { Put, Delete }
 
-/// <summary>
-/// One committed change, as the vector index and the hot-entry cache of every process apply it. Vector is null for a
-/// delete, and for an entry stored without a vector (exact-only).
-/// </summary>
+/// <summary>One committed change, as the vector index and the hot-entry cache of every process apply it.</summary>
+/// <param name="Sequence">Its place in the store's commit order.</param>
+/// <param name="EntryId">The entry changed.</param>
+/// <param name="Kind">Stored (or replaced), or deleted.</param>
+/// <param name="ScopeKey">The entry's scope (a put); null for a delete.</param>
+/// <param name="Vector">Null for a delete, and for an entry stored without a vector (exact-only).</param>
+/// <param name="ModelId">The embedding model that made <paramref name="Vector"/>.</param>
 public sealed record StoreChange(long Sequence, long EntryId, ChangeKind Kind, string? ScopeKey, float[]? Vector, string? ModelId);
 
 /// <summary>A listing's filter: null fields match everything.</summary>

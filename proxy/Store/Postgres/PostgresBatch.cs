@@ -1,7 +1,6 @@
 using System.Collections.Concurrent;
 using Dapper;
 using Npgsql;
-using RewriteProxy.Cache;
 
 namespace RewriteProxy.Store.Postgres;
 

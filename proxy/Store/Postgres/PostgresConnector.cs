@@ -3,7 +3,6 @@ using System.Net.Sockets;
 using System.Runtime.CompilerServices;
 using Dapper;
 using Npgsql;
-using RewriteProxy.Cache;
 
 namespace RewriteProxy.Store.Postgres;
 
@@ -79,6 +78,20 @@ public sealed class PostgresConnector : IAsyncDisposable
             // The exception's own message may quote the string, password included: say only what kind of problem it is.
             throw new ArgumentException($"the PostgreSQL connection string cannot be read ({e.GetType().Name}); "
                 + "expected Npgsql's format, e.g. Host=db;Port=5432;Database=rewriteproxy;Username=rewriteproxy;Password=...");
+        }
+    }
+
+    /// <summary>What is wrong with a connection string, or null when Npgsql can use it (the start-up check of Store:ConnectionString).</summary>
+    public static string? Problem(string connectionString)
+    {
+        try
+        {
+            Parse(connectionString);
+            return null;
+        }
+        catch (ArgumentException e)
+        {
+            return e.Message;
         }
     }
 

@@ -1,6 +1,5 @@
 using Dapper;
 using Npgsql;
-using RewriteProxy.Cache;
 
 namespace RewriteProxy.Store.Postgres;
 

@@ -1,7 +1,6 @@
 using Dapper;
 using Microsoft.Extensions.Logging;
 using Npgsql;
-using RewriteProxy.Cache;
 
 namespace RewriteProxy.Store.Postgres;
 

@@ -1,7 +1,6 @@
 using System.Data;
 using Dapper;
 using Npgsql;
-using RewriteProxy.Cache;
 
 namespace RewriteProxy.Store.Postgres;
 
@@ -37,8 +36,8 @@ public sealed partial class PostgresRewriteStore
 
     /// <summary>
     /// One statement, so one snapshot: the pruning mark and the changes after <paramref name="afterSequence"/> agree
-    /// (a prune between two statements could otherwise remove changes the mark said were there). A change of an
-    /// entry gone since is given as a delete: a later delete change follows it anyway. Null when the changes after
+    /// (a prune between two statements could otherwise remove changes the mark said were there). A put of an entry
+    /// gone since reads without scope and vector: the delete that follows it says the same. Null when the changes after
     /// the mark were pruned, or when the mark is beyond every sequence this store has handed out (the database was
     /// made anew under the reader).
     /// </summary>
@@ -56,10 +55,9 @@ public sealed partial class PostgresRewriteStore
         var list = rows.AsList();
         if (list.Count == 0) return [];
         if (afterSequence < list[0].PrunedThrough || afterSequence > list[0].LastIssued) return null;
-        return list.Where(r => r.Sequence is not null).Select(r => r.Kind == 'P' && r.ScopeKey is not null
-            ? new StoreChange(r.Sequence!.Value, r.EntryId!.Value, ChangeKind.Put, r.ScopeKey,
-                r.Vector is null ? null : PostgresValues.Vector(r.Vector), r.ModelId)
-            : new StoreChange(r.Sequence!.Value, r.EntryId!.Value, ChangeKind.Delete, null, null, null)).ToList();
+        return list.Where(r => r.Sequence is not null).Select(r => new StoreChange(r.Sequence!.Value, r.EntryId!.Value,
+            r.Kind == 'P' ? ChangeKind.Put : ChangeKind.Delete, r.ScopeKey, r.Vector is null ? null : PostgresValues.Vector(r.Vector),
+            r.ModelId)).ToList();
     }
 
     sealed record ChangeRecord

@@ -76,22 +76,9 @@ public sealed partial class PostgresRewriteStore
                 .Select(r => r.Decode()).ToList();
             var bytes = await c.ExecuteScalarAsync<long>(Command(
                 $"SELECT coalesce(sum(pg_total_relation_size(t::regclass)), 0)::bigint FROM unnest(ARRAY[{Tables}]) AS t"));
-            return new StoreStats(LaneTallies(entries, tallies), bytes, templates);
+            return new StoreStats(LaneStatsOf.Build(entries, tallies), bytes, templates);
         }, cancel);
     }
-
-    /// <summary>Per-lane stats from entry counts and tallies (every lane that has either).</summary>
-    static List<LaneStats> LaneTallies(Dictionary<string, long> entries, Dictionary<string, Dictionary<string, long>> tallies) =>
-        entries.Keys.Union(tallies.Keys).Order(StringComparer.Ordinal).Select(lane =>
-        {
-            var t = tallies.GetValueOrDefault(lane) ?? [];
-            long Get(string name) => t.GetValueOrDefault(name);
-            IReadOnlyDictionary<string, long> Prefixed(string prefix) => t.Where(p => p.Key.StartsWith(prefix, StringComparison.Ordinal))
-                .ToDictionary(p => p.Key[prefix.Length..], p => p.Value);
-            return new LaneStats(lane, entries.GetValueOrDefault(lane), Get(Tally.Lookup("hit_exact")), Get(Tally.Lookup("hit_semantic")),
-                Get(Tally.Lookup("miss")), Get(Tally.Lookup("bypass")), Get(Tally.TokensSaved), Prefixed(Tally.Dropped("")),
-                Prefixed(Tally.Refused("")), Prefixed(Tally.Question("")));
-        }).ToList();
 
     public async IAsyncEnumerable<EventRow> EventsAsync(string? lane, DateTimeOffset since, [EnumeratorCancellation] CancellationToken cancel)
     {

@@ -1,6 +1,5 @@
 using Dapper;
 using Microsoft.Extensions.Logging;
-using RewriteProxy.Cache;
 
 namespace RewriteProxy.Store.Postgres;
 

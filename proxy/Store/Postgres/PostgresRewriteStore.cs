@@ -1,5 +1,4 @@
 using Microsoft.Extensions.Logging;
-using RewriteProxy.Cache;
 
 namespace RewriteProxy.Store.Postgres;
 
@@ -25,13 +24,14 @@ public sealed partial class PostgresRewriteStore : IRewriteStore
     int _disposed;
 
     /// <summary>
-    /// The connection string is in Npgsql's format; its <c>Timeout</c>, <c>Command Timeout</c> and <c>Cancellation Timeout</c>
-    /// default to <see cref="PostgresConnector"/>'s small values when absent.
+    /// A store on the database of <see cref="StoreOptions.ConnectionString"/> (Npgsql's format; its <c>Timeout</c>,
+    /// <c>Command Timeout</c> and <c>Cancellation Timeout</c> default to <see cref="PostgresConnector"/>'s small values
+    /// when absent), not yet opened.
     /// </summary>
-    /// <exception cref="ArgumentException">the connection string cannot be read.</exception>
-    public PostgresRewriteStore(string connectionString, StoreOptions options, EventsOptions events, ILogger logger)
+    /// <exception cref="ArgumentException">the connection string is missing or cannot be read.</exception>
+    public PostgresRewriteStore(StoreOptions options, EventsOptions events, ILogger logger)
     {
-        _connector = new PostgresConnector(connectionString);
+        _connector = new PostgresConnector(options.ConnectionString ?? throw new ArgumentException("Store:ConnectionString is missing"));
         _options = options;
         _events = events;
         _log = logger;

@@ -2,7 +2,6 @@ using System.Runtime.InteropServices;
 using System.Security.Cryptography;
 using System.Text;
 using System.Text.Json;
-using RewriteProxy.Cache;
 
 namespace RewriteProxy.Store.Postgres;
 

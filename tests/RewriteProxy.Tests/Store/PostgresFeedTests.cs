@@ -41,7 +41,7 @@ public sealed class PostgresFeedTests(PostgresCluster cluster)
     }
 
     [Fact]
-    public async Task A_put_of_an_entry_deleted_since_reads_as_a_delete_and_pruned_changes_read_as_null()
+    public async Task A_put_of_an_entry_deleted_since_reads_without_a_vector_and_pruned_changes_read_as_null()
     {
         var db = await cluster.CreateDatabaseAsync();
         await using var store = await OpenAsync(db);
@@ -49,7 +49,7 @@ public sealed class PostgresFeedTests(PostgresCluster cluster)
         await store.PurgeAsync(new PurgeFilter(Id: id), None);
 
         var changes = (await store.ChangesAfterAsync(0, 10, None))!;
-        Assert.Equal([ChangeKind.Delete, ChangeKind.Delete], changes.Select(c => c.Kind));
+        Assert.Equal([ChangeKind.Put, ChangeKind.Delete], changes.Select(c => c.Kind));
         Assert.All(changes, c => Assert.Null(c.Vector));
 
         await ScalarAsync<long>(db, "UPDATE changes SET at = now() - interval '30 days' WHERE seq = 1 RETURNING seq");

@@ -15,7 +15,8 @@ public static class PostgresStoreKit
     public static async Task<PostgresRewriteStore> OpenAsync(string connectionString, StoreOptions? options = null, EventsOptions? events = null,
         ILogger? log = null, StoreAccess access = StoreAccess.ReadWrite)
     {
-        var store = new PostgresRewriteStore(connectionString, options ?? new StoreOptions(), events ?? new EventsOptions(), log ?? NullLogger.Instance);
+        var place = (options ?? new StoreOptions()) with { Provider = StoreProvider.Postgres, ConnectionString = connectionString };
+        var store = new PostgresRewriteStore(place, events ?? new EventsOptions(), log ?? NullLogger.Instance);
         try
         {
             await store.OpenAsync(access, CancellationToken.None);

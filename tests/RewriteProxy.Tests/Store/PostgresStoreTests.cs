@@ -162,7 +162,7 @@ public sealed class PostgresStoreTests(PostgresCluster cluster) : IAsyncLifetime
             SELECT sum(pg_total_relation_size(c.oid))::bigint FROM pg_class c JOIN pg_namespace n ON n.oid = c.relnamespace
             WHERE n.nspname = 'public' AND c.relkind = 'r'
             """);
-        Assert.Equal(tables, stats.FileBytes);
+        Assert.Equal(tables, stats.Bytes);
     }
 
     [Fact]

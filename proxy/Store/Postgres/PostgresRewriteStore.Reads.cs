@@ -6,11 +6,20 @@ namespace RewriteProxy.Store.Postgres;
 
 public sealed partial class PostgresRewriteStore
 {
+    /// <summary>The columns of <see cref="EntryRow"/>: times as Unix milliseconds (stored to the millisecond, so exact).</summary>
+    const string EntryColumns = """
+        id AS Id, scope_key AS ScopeKey, partition_hash AS PartitionHash, lane AS Lane, question AS Question,
+        normalized AS Normalized, content AS Content, scores::text AS Scores, response_model AS ResponseModel, model_id AS ModelId,
+        prompt_tokens AS PromptTokens, completion_tokens AS CompletionTokens,
+        (extract(epoch FROM created) * 1000)::bigint AS Created, (extract(epoch FROM last_hit) * 1000)::bigint AS LastHit,
+        hit_count AS HitCount
+        """;
+
     public async ValueTask<StoredEntry?> FindExactAsync(string scopeKey, string normalized, DateTimeOffset minCreated, CancellationToken cancel)
     {
         EnsureOpen();
-        var row = await _connector.RunAsync("an exact lookup", c => c.QuerySingleOrDefaultAsync<PostgresEntryRow>(new CommandDefinition($"""
-            SELECT {PostgresEntryRow.Columns} FROM entries
+        var row = await _connector.RunAsync("an exact lookup", c => c.QuerySingleOrDefaultAsync<EntryRow>(new CommandDefinition($"""
+            SELECT {EntryColumns} FROM entries
             WHERE scope_key = @scopeKey AND normalized_hash = @hash AND normalized = @normalized AND created >= @min
             """, new
         {
@@ -22,8 +31,8 @@ public sealed partial class PostgresRewriteStore
     public async ValueTask<StoredEntry?> GetAsync(long id, DateTimeOffset minCreated, CancellationToken cancel)
     {
         EnsureOpen();
-        var row = await _connector.RunAsync("reading an entry", c => c.QuerySingleOrDefaultAsync<PostgresEntryRow>(new CommandDefinition(
-            $"SELECT {PostgresEntryRow.Columns} FROM entries WHERE id = @id AND created >= @min",
+        var row = await _connector.RunAsync("reading an entry", c => c.QuerySingleOrDefaultAsync<EntryRow>(new CommandDefinition(
+            $"SELECT {EntryColumns} FROM entries WHERE id = @id AND created >= @min",
             new { id, min = PostgresValues.Time(minCreated) }, cancellationToken: cancel)), cancel);
         return row?.Decode();
     }
@@ -31,8 +40,8 @@ public sealed partial class PostgresRewriteStore
     public async Task<IReadOnlyList<StoredEntry>> ListAsync(EntryQuery query, CancellationToken cancel)
     {
         EnsureOpen();
-        var rows = await _connector.RunLongAsync("listing entries", c => c.QueryAsync<PostgresEntryRow>(new CommandDefinition($"""
-            SELECT {PostgresEntryRow.Columns} FROM entries
+        var rows = await _connector.RunLongAsync("listing entries", c => c.QueryAsync<EntryRow>(new CommandDefinition($"""
+            SELECT {EntryColumns} FROM entries
             WHERE (@Lane::text IS NULL OR lane = @Lane) AND (@PartitionHash::text IS NULL OR partition_hash = @PartitionHash)
               AND (@contains::text IS NULL OR strpos(normalized, @contains) > 0)
             ORDER BY last_hit DESC, id DESC LIMIT @Limit

@@ -30,51 +30,7 @@ public static class PostgresValues
     public static byte[] Hash(string text) => SHA256.HashData(Encoding.UTF8.GetBytes(Text(text)));
 
     /// <summary>The unique key of a template's prefix and suffix (a NUL between them cannot occur in cleaned text).</summary>
-    public static byte[] Hash(string prefix, string suffix) => Hash(Text(prefix) + "\0" + Text(suffix));
+    public static byte[] Hash(string prefix, string suffix) => SHA256.HashData(Encoding.UTF8.GetBytes(Text(prefix) + "\0" + Text(suffix)));
 
     public static string Scores(EntryScores scores) => JsonSerializer.Serialize(scores);
-
-    /// <summary>A damaged scores value costs the hit its drift headers, never the hit itself.</summary>
-    public static EntryScores Scores(string json)
-    {
-        try
-        {
-            return JsonSerializer.Deserialize<EntryScores>(json) ?? EntryScores.None;
-        }
-        catch (JsonException)
-        {
-            return EntryScores.None;
-        }
-    }
-}
-
-/// <summary>An <c>entries</c> row as PostgreSQL gives it back (times as UTC DateTime, scores as JSON text).</summary>
-public sealed record PostgresEntryRow
-{
-    public long Id { get; init; }
-    public string ScopeKey { get; init; } = "";
-    public string PartitionHash { get; init; } = "";
-    public string Lane { get; init; } = "";
-    public string Question { get; init; } = "";
-    public string Normalized { get; init; } = "";
-    public string Content { get; init; } = "";
-    public string Scores { get; init; } = "{}";
-    public string? ResponseModel { get; init; }
-    public string? ModelId { get; init; }
-    public long PromptTokens { get; init; }
-    public long CompletionTokens { get; init; }
-    public DateTime Created { get; init; }
-    public DateTime LastHit { get; init; }
-    public long HitCount { get; init; }
-
-    /// <summary>The columns, named for this record.</summary>
-    public const string Columns = """
-        id AS Id, scope_key AS ScopeKey, partition_hash AS PartitionHash, lane AS Lane, question AS Question,
-        normalized AS Normalized, content AS Content, scores::text AS Scores, response_model AS ResponseModel, model_id AS ModelId,
-        prompt_tokens AS PromptTokens, completion_tokens AS CompletionTokens, created AS Created, last_hit AS LastHit,
-        hit_count AS HitCount
-        """;
-
-    public StoredEntry Decode() => new(Id, ScopeKey, PartitionHash, Lane, Question, Normalized, Content, PostgresValues.Scores(Scores),
-        ResponseModel, ModelId, PromptTokens, CompletionTokens, PostgresValues.Time(Created), PostgresValues.Time(LastHit), HitCount);
 }

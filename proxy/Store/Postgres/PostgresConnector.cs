@@ -115,8 +115,9 @@ public sealed class PostgresConnector : IAsyncDisposable
 
     /// <summary>
     /// The longest a request-path call may take, whatever the driver does: opening a connection plus one command.
-    /// (A frozen server made Npgsql give up only after three times the command timeout: it also waits on its
-    /// cancellation request.) A call cut off here goes on in the background and its late outcome is dropped.
+    /// (Against a frozen server Npgsql gave up only after three times the command timeout, as it also waits on its
+    /// cancellation request: docs/measurements/postgres-store.md.) A call cut off here goes on in the background and
+    /// its late outcome is dropped.
     /// </summary>
     public TimeSpan RequestBound => ConnectTimeout + CommandTimeout;
 

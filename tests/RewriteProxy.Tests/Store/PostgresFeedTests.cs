@@ -1,4 +1,5 @@
 using Npgsql;
+using Xunit.Abstractions;
 using RewriteProxy.Cache;
 using RewriteProxy.Store;
 using RewriteProxy.Store.Postgres;
@@ -9,7 +10,7 @@ namespace RewriteProxy.Tests.Store;
 
 /// <summary>The change feed every replica's index follows: vectors at a sequence, changes after it, notifications.</summary>
 [Collection(PostgresCollection.Name)]
-public sealed class PostgresFeedTests(PostgresCluster cluster)
+public sealed class PostgresFeedTests(PostgresCluster cluster, ITestOutputHelper output)
 {
     static readonly CancellationToken None = CancellationToken.None;
 
@@ -172,9 +173,11 @@ public sealed class PostgresFeedTests(PostgresCluster cluster)
         var announced = new TaskCompletionSource(TaskCreationOptions.RunContinuationsAsynchronously);
         follower.ChangesAvailable += () => announced.TrySetResult();
 
+        var clock = System.Diagnostics.Stopwatch.StartNew();
         await writer.AddAsync(Entry("When is the recycling centre open?"), None);
 
         await announced.Task.WaitAsync(TimeSpan.FromSeconds(2)); // the propagation bound
+        output.WriteLine($"announced {clock.Elapsed.TotalMilliseconds:0.0} ms after AddAsync was called");
     }
 
     [Fact]

@@ -250,8 +250,7 @@ public sealed class PostgresConnector : IAsyncDisposable
                 or "53300" // too many connections
                 or "57014", // query canceled: our command timeout
         NpgsqlException or TimeoutException or IOException or SocketException or OperationCanceledException => true,
-        InvalidOperationException => true, // Npgsql: a connection broken under a command
-        _ => false,
+        _ => false, // InvalidOperationException among them: a mapping or usage error of ours, which waiting would not cure
     };
 
     public ValueTask DisposeAsync() => _source.DisposeAsync();

@@ -42,9 +42,6 @@ public sealed class PostgresListener : IAsyncDisposable
     /// <summary>Whether it listens now.</summary>
     public bool Connected => _connected;
 
-    /// <summary>How many times it has started listening (1 after the first connection; tests read reconnects from it).</summary>
-    public int Connections { get; private set; }
-
     async Task RunAsync()
     {
         var retry = FirstRetry;
@@ -57,7 +54,6 @@ public sealed class PostgresListener : IAsyncDisposable
                 connection.Notification += OnNotification;
                 await connection.ExecuteAsync(new CommandDefinition($"LISTEN {PostgresEntryWrites.Channel}", cancellationToken: _stop.Token));
                 _connected = true;
-                Connections++;
                 retry = FirstRetry;
                 _connector.Circuit.Succeeded();
                 if (lost) _log.LogInformation("store: listening for changes again at {Location}", _connector.Location);

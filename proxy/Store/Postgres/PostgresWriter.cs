@@ -40,6 +40,7 @@ public sealed class PostgresWriter : IAsyncDisposable
     readonly CancellationTokenSource _stop = new();
     readonly Task _loop;
     long _dropped;
+    long _hitEntries;
     int _pendingWake;
     bool _failing;
     long _retryAt;
@@ -59,7 +60,8 @@ public sealed class PostgresWriter : IAsyncDisposable
     public void RecordHit(long id, DateTimeOffset at)
     {
         var last = PostgresValues.Time(at);
-        if (_hits.Count >= QueueCapacity && !_hits.ContainsKey(id))
+        // Entries with hits waiting, counted here and recounted by the writer (ConcurrentDictionary.Count takes every lock).
+        if (!_hits.ContainsKey(id) && Interlocked.Increment(ref _hitEntries) > QueueCapacity)
         {
             Interlocked.Increment(ref _dropped);
             return;
@@ -163,6 +165,7 @@ public sealed class PostgresWriter : IAsyncDisposable
         {
             Volatile.Write(ref _pendingWake, 0);
             var batch = PostgresBatch.Take(_hits, _tallies, _events, _templates, BatchSize);
+            Interlocked.Exchange(ref _hitEntries, _hits.Count);
             try
             {
                 await _connector.RunLongAsync("writing hits, tallies and events", c => batch.WriteAsync(c, _stop.Token), _stop.Token);
@@ -177,6 +180,7 @@ public sealed class PostgresWriter : IAsyncDisposable
                 if (down)
                 {
                     batch.PutBack(_hits, _tallies);
+                    Interlocked.Exchange(ref _hitEntries, _hits.Count);
                     _retryAt = Environment.TickCount64 + (long)PostgresCircuit.FirstPause.TotalMilliseconds;
                     if (!_failing) _log.LogWarning("store: background writes wait for the database: {Reason}", e.Message);
                     _failing = true;

@@ -15,13 +15,14 @@ public sealed class ReplicaSet : IAsyncDisposable
 
     readonly List<ProxyProcess> _replicas;
 
-    ReplicaSet(List<ProxyProcess> replicas, string database)
+    ReplicaSet(List<ProxyProcess> replicas, string connectionString)
     {
         _replicas = replicas;
-        Database = database;
+        ConnectionString = connectionString;
     }
 
-    public string Database { get; }
+    /// <summary>The replicas' shared database.</summary>
+    public string ConnectionString { get; }
 
     public ProxyProcess this[int i] => _replicas[i];
 
@@ -31,11 +32,11 @@ public sealed class ReplicaSet : IAsyncDisposable
     public static async Task<ReplicaSet> StartAsync(PostgresCluster cluster, ScriptedUpstream upstream, int count = 3,
         IDictionary<string, string>? settings = null)
     {
-        var database = await cluster.CreateDatabaseAsync();
+        var connectionString = await cluster.CreateDatabaseAsync();
         var all = new Dictionary<string, string>
         {
             ["Store:Provider"] = "postgres",
-            ["Store:ConnectionString"] = cluster.ConnectionString(database),
+            ["Store:ConnectionString"] = connectionString,
             ["Store:IndexSnapshotPath"] = "",
             ["Admin:Token"] = AdminToken,
             // Every draft is accepted: these tests are about sharing entries, not judging them.
@@ -45,7 +46,7 @@ public sealed class ReplicaSet : IAsyncDisposable
         foreach (var (k, v) in settings ?? new Dictionary<string, string>()) all[k] = v;
         var started = await Task.WhenAll(Enumerable.Range(0, count)
             .Select(_ => ProxyProcess.StartAsync(upstream.BaseUrl, TestProxy.NewStorePath(), all)));
-        return new ReplicaSet([.. started], database);
+        return new ReplicaSet([.. started], connectionString);
     }
 
     /// <summary>Purges through one replica's admin API, as an operator would.</summary>

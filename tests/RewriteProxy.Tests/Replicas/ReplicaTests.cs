@@ -9,8 +9,8 @@ namespace RewriteProxy.Tests.Replicas;
 /// throwaway cluster started by <see cref="PostgresCluster"/>). Propagation is measured with only-if-cached probes
 /// (RFC 9111 §5.2.1.7), which never call upstream and never store, so measuring does not change what is measured.
 /// </summary>
-[Collection(PostgresCollection.Name)]
-public sealed class ReplicaTests(PostgresCluster cluster, ITestOutputHelper output) : IAsyncLifetime
+/// <remarks>A cluster of its own: one scenario stops the server.</remarks>
+public sealed class ReplicaTests(PostgresCluster cluster, ITestOutputHelper output) : IClassFixture<PostgresCluster>, IAsyncLifetime
 {
     /// <summary>The bound for an entry, a purge or an expiry to reach every replica.</summary>
     static readonly TimeSpan Propagation = TimeSpan.FromSeconds(2);

@@ -39,6 +39,7 @@ public static class OptionsReader
             ClaimWait = r.Duration("Store:ClaimWait", storeDefaults.ClaimWait, positive: true),
             // Empty (not absent) turns snapshots off, so this one key is read as written.
             IndexSnapshotPath = config["Store:IndexSnapshotPath"]?.Trim() ?? StoreOptions.SnapshotPathFor(provider, storePath),
+            IndexSnapshotInterval = r.Duration("Store:IndexSnapshotInterval", storeDefaults.IndexSnapshotInterval, positive: true),
         };
         foreach (var problem in StoreFactory.Problems(store)) r.Error(problem);
         EmbeddingOptions embeddingDefaults = new();

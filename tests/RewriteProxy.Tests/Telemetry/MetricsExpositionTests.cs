@@ -207,7 +207,7 @@ public sealed class MetricsExpositionTests(MetricsWorkloadFixture run, ITestOutp
         var allowed = new Dictionary<string, Regex>
         {
             ["lane"] = new("^[A-Za-z0-9_-]{1,32}$"),
-            ["result"] = new("^(hit_exact|hit_semantic|miss|bypass)$"),
+            ["result"] = new("^(hit_exact|hit_semantic|miss|bypass|probe_hit|probe_miss)$"),
             ["verdict"] = new("^(accepted|dropped)$"),
             ["reason"] = new("^[a-z_]{1,16}$"),
             ["code"] = new("^([1-5][0-9][0-9]|timeout|error|too_large)$"),

@@ -36,15 +36,19 @@ public sealed class ReplicaTests(PostgresCluster cluster, ITestOutputHelper outp
     public async Task An_entry_stored_by_one_replica_is_an_exact_and_a_semantic_hit_on_the_others_within_2_s()
     {
         await using var set = await ReplicaSet.StartAsync(cluster, _upstream);
+        // A first lane call per process (code paths compiled, the model's first run), so the delay below is propagation.
+        foreach (var replica in set.All) await replica.Client.AskAsync("draft", "Warm-up question about parking permits?", cacheControl: "only-if-cached");
 
         var miss = await set[0].Client.AskAsync("draft", Question);
         Assert.Equal("miss", miss.Cache);
 
+        // Both other replicas probed at once, from the moment the miss was answered.
+        var delays = await Task.WhenAll(new[] { set[1], set[2] }.Select(other =>
+            ReplicaSet.ProbeUntilAsync(other, Paraphrase, r => r.Cache == "hit-semantic", Propagation)));
+        output.WriteLine($"semantic hit on the other replicas after {string.Join(" and ", delays.Select(d => d is { } t ? $"{t.TotalMilliseconds:0} ms" : "never"))}");
+        Assert.All(delays, d => Assert.True(d is not null, $"a replica served no semantic hit within {Propagation.TotalSeconds} s"));
         foreach (var other in new[] { set[1], set[2] })
         {
-            var semantic = await ReplicaSet.ProbeUntilAsync(other, Paraphrase, r => r.Cache == "hit-semantic", Propagation);
-            Assert.True(semantic is not null, $"replica on {other.Root} served no semantic hit within {Propagation.TotalSeconds} s");
-            output.WriteLine($"semantic hit on another replica after {semantic!.Value.TotalMilliseconds:0} ms");
             var exact = await other.Client.AskAsync("draft", Question, cacheControl: "only-if-cached");
             Assert.Equal("hit-exact", exact.Cache);
             Assert.Equal(miss.Content, exact.Content);

@@ -477,15 +477,17 @@ run_hits() {
 # ---- hits on both stores ---------------------------------------------------------------------------------------------
 # A throwaway PostgreSQL cluster in $work/pg owned by the postgres user, on 127.0.0.1, removed with $work.
 start_postgres() {
-  local bin; bin=$(ls -d /usr/lib/postgresql/*/bin 2>/dev/null | sort -V | tail -1)
+  pg_bin=$(ls -d /usr/lib/postgresql/*/bin 2>/dev/null | sort -V | tail -1)
+  local bin=$pg_bin
   [ -x "$bin/initdb" ] || { echo "bench.sh: stores needs Debian's postgresql package (apt-get install postgresql)" >&2; exit 2; }
   pg_port=${BENCH_PG_PORT:-18096}
   mkdir -p "$work/pg"; chown postgres "$work/pg"
   runuser -u postgres -- "$bin/initdb" -D "$work/pg/data" -A trust -U postgres >/dev/null
   runuser -u postgres -- "$bin/pg_ctl" -D "$work/pg/data" -l "$work/pg/log" -w \
     -o "-c listen_addresses=127.0.0.1 -p $pg_port -k $work/pg -c fsync=on" start >/dev/null
-  pg_stop() { runuser -u postgres -- "$bin/pg_ctl" -D "$work/pg/data" -m fast stop >/dev/null 2>&1 || true; }
-  runuser -u postgres -- psql -h "$work/pg" -p "$pg_port" -qc "CREATE ROLE bench LOGIN; CREATE DATABASE bench OWNER bench;" >/dev/null
+  pg_stop() { runuser -u postgres -- "$pg_bin/pg_ctl" -D "$work/pg/data" -m fast stop >/dev/null 2>&1 || true; }
+  runuser -u postgres -- psql -h "$work/pg" -p "$pg_port" -qc "CREATE ROLE bench LOGIN" >/dev/null
+  runuser -u postgres -- psql -h "$work/pg" -p "$pg_port" -qc "CREATE DATABASE bench OWNER bench" >/dev/null
   echo "  postgres: $("$bin/postgres" --version), 127.0.0.1:$pg_port, fsync on"
 }
 

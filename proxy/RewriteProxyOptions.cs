@@ -3,6 +3,7 @@ using RewriteProxy.Cache;
 using RewriteProxy.Embedding;
 using RewriteProxy.Forwarding;
 using RewriteProxy.Lanes;
+using RewriteProxy.Store;
 using RewriteProxy.Telemetry;
 
 namespace RewriteProxy;

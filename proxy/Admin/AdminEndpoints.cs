@@ -5,6 +5,7 @@ using Microsoft.AspNetCore.Builder;
 using Microsoft.AspNetCore.Http;
 using Microsoft.AspNetCore.Routing;
 using RewriteProxy.Cache;
+using RewriteProxy.Store;
 using RewriteProxy.Wire;
 
 namespace RewriteProxy.Admin;
@@ -39,12 +40,13 @@ public static class AdminEndpoints
             return await next(invocation);
         });
 
-        admin.MapGet("/stats", (IRewriteStore store) => Guarded(() => Results.Json(StatsBody(store.Stats()))));
+        admin.MapGet("/stats", (IRewriteStore store, CancellationToken cancel) =>
+            GuardedAsync(async () => Results.Json(StatsBody(await store.StatsAsync(cancel)))));
 
-        admin.MapGet("/entries", (IRewriteStore store, string? lane, string? partition, string? q, int? limit) => Guarded(() =>
+        admin.MapGet("/entries", (IRewriteStore store, string? lane, string? partition, string? q, int? limit, CancellationToken cancel) =>
+            GuardedAsync(async () =>
         {
-            var sqlite = (SqliteRewriteStore)store;
-            var rows = sqlite.List(lane, partition, q, Math.Clamp(limit ?? 50, 1, MaxListed));
+            var rows = await store.ListAsync(new EntryQuery(lane, partition, q, Math.Clamp(limit ?? 50, 1, MaxListed)), cancel);
             return Results.Json(new
             {
                 entries = rows.Select(e => new
@@ -98,7 +100,7 @@ public static class AdminEndpoints
 
     public static object StatsBody(StoreStats stats) => new
     {
-        storeBytes = stats.FileBytes,
+        storeBytes = stats.Bytes,
         lanes = stats.Lanes.Select(l => new
         {
             lane = l.Lane,
@@ -128,18 +130,6 @@ public static class AdminEndpoints
 
     static IResult Error(int status, string message) =>
         Results.Json(new { error = new { message, type = "invalid_request_error", code = "invalid_request" } }, statusCode: status);
-
-    static IResult Guarded(Func<IResult> work)
-    {
-        try
-        {
-            return work();
-        }
-        catch (StoreException e)
-        {
-            return StoreDown(e);
-        }
-    }
 
     static async Task<IResult> GuardedAsync(Func<Task<IResult>> work)
     {

@@ -1,3 +1,5 @@
+using RewriteProxy.Store;
+
 namespace RewriteProxy.Cache;
 
 /// <summary>Which question a lookup or a store is for: the lane, where an entry may be shared (scope, partition), and the question as asked and normalised.</summary>
@@ -22,11 +24,11 @@ public interface IRewriteCache
 {
     /// <summary>Exact lookup on the normalised question, then semantic lookup (similarity ≥ <paramref name="minSimilarity"/>, anchors agreeing).</summary>
     /// <exception cref="CacheFailure">the store, the index or the embedder failed.</exception>
-    LookupResult Lookup(CacheKey key, double minSimilarity);
+    ValueTask<LookupResult> LookupAsync(CacheKey key, double minSimilarity, CancellationToken cancel);
 
     /// <summary>Exact lookup only (no embedding): for a call whose question is not located with confidence.</summary>
     /// <exception cref="CacheFailure">the store failed.</exception>
-    LookupResult LookupExact(CacheKey key);
+    ValueTask<LookupResult> LookupExactAsync(CacheKey key, CancellationToken cancel);
 
     /// <summary>L2-normalised vectors of <paramref name="texts"/>, in one model run.</summary>
     /// <exception cref="CacheFailure">the embedder failed.</exception>

@@ -1,13 +1,13 @@
-using System.Diagnostics;
-using Microsoft.Extensions.Logging;
 using RewriteProxy.Embedding;
+using RewriteProxy.Store;
 using RewriteProxy.Telemetry;
 
 namespace RewriteProxy.Cache;
 
 /// <summary>
 /// Exact lookup (normalised text, no embedding), then semantic lookup (nearest questions of the scope in the vector
-/// index, each checked by the anchor guard), over the store. Keeps the index in step with the store.
+/// index, each checked by the anchor guard), over the store. The <see cref="IndexFollower"/> keeps the index in step
+/// with the store; this cache also indexes what it stores itself at once, so a repeat on this process hits immediately.
 /// </summary>
 public sealed class SemanticCache : IRewriteCache
 {
@@ -16,80 +16,38 @@ public sealed class SemanticCache : IRewriteCache
 
     readonly IRewriteStore _store;
     readonly VectorIndex _index;
+    readonly HotEntries _hot;
     readonly IEmbedder _embedder;
-    readonly AnchorGuard _guard;
     readonly HitDecision _decision;
     readonly LaneTally _tally;
     readonly StoreOptions _options;
-    readonly ILogger _log;
 
-    public SemanticCache(IRewriteStore store, VectorIndex index, IEmbedder embedder, AnchorGuard guard, LaneTally tally, StoreOptions options,
-        ILogger log)
+    public SemanticCache(IRewriteStore store, VectorIndex index, HotEntries hot, IEmbedder embedder, AnchorGuard guard, LaneTally tally,
+        StoreOptions options)
     {
         if (index.Dimensions != embedder.Dimension)
             throw new ArgumentException($"The index holds vectors of {index.Dimensions} dimensions, the embedder makes {embedder.Dimension}.", nameof(index));
         _store = store;
         _index = index;
+        _hot = hot;
         _embedder = embedder;
-        _guard = guard;
         _decision = new HitDecision(guard);
         _tally = tally;
         _options = options;
-        _log = log;
-        _store.Removed += ids =>
-        {
-            foreach (var id in ids) _index.Remove(id);
-        };
-        _store.Reset += _index.Clear;
-    }
-
-    /// <summary>Opens the store (migrations included); throws <see cref="StoreException"/> when it cannot.</summary>
-    public void Start() => _store.Open();
-
-    /// <summary>
-    /// Rebuilds the vector index from the store, off the request path: a million entries take minutes to index
-    /// (docs/measurements/index.md). Meanwhile exact lookups work as usual and semantic lookups see what is loaded so far, so
-    /// a call that would have been a semantic hit is a miss until then. Logs how long it took.
-    /// </summary>
-    public Task LoadIndexAsync() => Task.Run(() =>
-    {
-        var watch = Stopwatch.StartNew();
-        try
-        {
-            var rows = _store.ReadVectors(_embedder.ModelId);
-            var loaded = 0;
-            _index.Load(Count(rows, () => loaded++));
-            IndexReady = true;
-            _log.LogInformation("cache: index rebuilt with {Count} vectors of model {ModelId} in {Ms} ms", loaded, _embedder.ModelId,
-                watch.ElapsedMilliseconds);
-        }
-        catch (Exception e) when (e is StoreException or InvalidOperationException or OutOfMemoryException)
-        {
-            _log.LogError("cache: the index could not be rebuilt ({Reason}); semantic lookups see only new entries", e.Message);
-        }
-    });
-
-    /// <summary>True once the start-up rebuild of the index has finished.</summary>
-    public volatile bool IndexReady;
-
-    static IEnumerable<(string, long, float[])> Count(IEnumerable<IndexRow> rows, Action each)
-    {
-        foreach (var r in rows)
-        {
-            each();
-            yield return (r.ScopeKey, r.Id, r.Vector);
-        }
     }
 
     DateTimeOffset MinCreated => DateTimeOffset.UtcNow - _options.Ttl;
 
-    public LookupResult LookupExact(CacheKey key)
+    public async ValueTask<LookupResult> LookupExactAsync(CacheKey key, CancellationToken cancel) =>
+        await FindExactAsync(key, cancel) is { } exact
+            ? new LookupResult(LookupKind.HitExact, exact, null, null)
+            : new LookupResult(LookupKind.Miss, null, null, null);
+
+    async ValueTask<StoredEntry?> FindExactAsync(CacheKey key, CancellationToken cancel)
     {
         try
         {
-            return _store.FindExact(key.ScopeKey, key.Normalized, MinCreated) is { } exact
-                ? new LookupResult(LookupKind.HitExact, exact, null, null)
-                : new LookupResult(LookupKind.Miss, null, null, null);
+            return await _store.FindExactAsync(key.ScopeKey, key.Normalized, MinCreated, cancel);
         }
         catch (StoreException e)
         {
@@ -97,18 +55,9 @@ public sealed class SemanticCache : IRewriteCache
         }
     }
 
-    public LookupResult Lookup(CacheKey key, double minSimilarity)
+    public async ValueTask<LookupResult> LookupAsync(CacheKey key, double minSimilarity, CancellationToken cancel)
     {
-        StoredEntry? exact;
-        try
-        {
-            exact = _store.FindExact(key.ScopeKey, key.Normalized, MinCreated);
-        }
-        catch (StoreException e)
-        {
-            throw new CacheFailure(FailOpenReason.Store, e.Message, e);
-        }
-        if (exact is not null) return new LookupResult(LookupKind.HitExact, exact, null, null);
+        if (await FindExactAsync(key, cancel) is { } exact) return new LookupResult(LookupKind.HitExact, exact, null, null);
 
         var vector = Embed([key.Question])[0];
         IReadOnlyList<(long Id, float Similarity)> near;
@@ -125,16 +74,8 @@ public sealed class SemanticCache : IRewriteCache
         var asked = _decision.Read(key.Question);
         foreach (var (id, similarity) in near)
         {
-            StoredEntry? entry;
-            try
-            {
-                entry = _store.Get(id, MinCreated);
-            }
-            catch (StoreException e)
-            {
-                throw new CacheFailure(FailOpenReason.Store, e.Message, e);
-            }
-            if (entry is null) continue;
+            // The index searched this scope only; an entry of another scope under the id is one the index has not caught up on.
+            if (await CandidateAsync(id, cancel) is not { } entry || entry.ScopeKey != key.ScopeKey) continue;
             var verdict = _decision.Decide(asked, _decision.Read(entry.Question), similarity);
             if (verdict.Agree) return new LookupResult(LookupKind.HitSemantic, entry, similarity, vector);
 
@@ -144,6 +85,25 @@ public sealed class SemanticCache : IRewriteCache
                 similarity, "refused", LabelValue.Of(reason)));
         }
         return new LookupResult(LookupKind.Miss, null, null, vector);
+    }
+
+    /// <summary>A semantic candidate from the hot entries, else from the store (then kept hot).</summary>
+    async ValueTask<StoredEntry?> CandidateAsync(long id, CancellationToken cancel)
+    {
+        var minCreated = MinCreated;
+        if (_hot.TryGet(id, minCreated, out var hot)) return hot;
+        var stamp = _hot.Stamp;
+        StoredEntry? entry;
+        try
+        {
+            entry = await _store.GetAsync(id, minCreated, cancel);
+        }
+        catch (StoreException e)
+        {
+            throw new CacheFailure(FailOpenReason.Store, e.Message, e);
+        }
+        if (entry is not null) _hot.Add(entry, stamp);
+        return entry;
     }
 
     public float[][] Embed(IReadOnlyList<string> texts)
@@ -173,13 +133,14 @@ public sealed class SemanticCache : IRewriteCache
         {
             throw new CacheFailure(FailOpenReason.Store, e.Message, e);
         }
-        // Without a vector (an unlocated call's entry) the entry is found only exactly, never by the index.
-        if (questionVector is null) return;
+        // What the follower will apply too (idempotent); done here so that a repeat on this process hits at once.
+        // A replaced entry keeps its id: its old content and vector go.
+        _hot.Invalidate(id);
         try
         {
-            // A replaced entry keeps its id: drop the old vector first.
-            _index.Remove(id);
-            _index.Add(key.ScopeKey, id, questionVector);
+            // Without a vector (an unlocated call's entry) the entry is found only exactly, never by the index.
+            if (questionVector is null) _index.Remove(id);
+            else _index.Add(key.ScopeKey, id, questionVector);
         }
         catch (Exception e) when (e is not OutOfMemoryException)
         {

@@ -1,8 +1,5 @@
 using System.CommandLine;
-using Dapper;
-using Microsoft.Data.Sqlite;
-using Microsoft.Extensions.Logging.Abstractions;
-using RewriteProxy.Cache;
+using RewriteProxy.Store;
 
 namespace RewriteProxy.Cli;
 
@@ -14,8 +11,8 @@ public sealed record PurgeRequest(string? Lane, string? Partition, string? Older
 }
 
 /// <summary>
-/// <c>rewriteproxy purge</c>: deletes entries by lane, partition and/or age, from a store file or through a running
-/// proxy's <c>POST /admin/purge</c>. At least one filter is required. <c>--dry-run</c> only counts (store file only:
+/// <c>rewriteproxy purge</c>: deletes entries by lane, partition and/or age, from the store or through a running
+/// proxy's <c>POST /admin/purge</c>. At least one filter is required. <c>--dry-run</c> only counts (the store only:
 /// the admin API has no count). Deleting asks for confirmation on a terminal; when stdin is not a terminal (CI,
 /// pipes) nothing is asked and <c>--yes</c> is required.
 /// </summary>
@@ -25,7 +22,7 @@ public static class PurgeCommand
     static readonly Option<string?> Lane = new("--lane") { Description = "Only entries of this lane." };
     static readonly Option<string?> Partition = new("--partition") { Description = "Only entries of this partition hash." };
     static readonly Option<string?> OlderThan = new("--older-than") { Description = "Only entries created longer ago than this, e.g. 7d or 12h." };
-    static readonly Option<bool> DryRun = new("--dry-run") { Description = "Count what would be deleted; delete nothing (store file only)." };
+    static readonly Option<bool> DryRun = new("--dry-run") { Description = "Count what would be deleted; delete nothing (reads the store; not with --url)." };
     static readonly Option<bool> Yes = new("--yes") { Description = "Delete without asking; required when stdin is not a terminal." };
 
     public static Command Create()
@@ -40,7 +37,7 @@ public static class PurgeCommand
             if (request is { Lane: null, Partition: null, OlderThan: null })
             {
                 Console.Error.WriteLine("rewriteproxy: purge: give at least one of --lane, --partition, --older-than " +
-                    "(to empty the whole cache, delete the store file while the proxy is stopped)");
+                    "(to empty the whole cache, purge each lane with --lane)");
                 return ExitCodes.BadConfiguration;
             }
             if (Target.Resolve(parse, "purge") is not { } target) return ExitCodes.BadConfiguration;
@@ -73,14 +70,10 @@ public static class PurgeCommand
         try
         {
             long? count = null;
-            if (target.Url is null)
-            {
-                if (!File.Exists(target.StorePath)) throw new StoreException($"{target.StorePath}: no store file there (use --store or Store:Path)");
-                count = CountMatching(target.StorePath!, filter);
-            }
+            if (target.Url is null) count = await CountMatchingAsync(target.Store!, filter, cancel);
             else if (request.DryRun)
             {
-                await stderr.WriteLineAsync("rewriteproxy: purge: --dry-run needs --store: the admin API deletes but does not count");
+                await stderr.WriteLineAsync("rewriteproxy: purge: --dry-run reads the store (leave out --url): the admin API deletes but does not count");
                 return ExitCodes.BadConfiguration;
             }
             if (request.DryRun)
@@ -110,7 +103,7 @@ public static class PurgeCommand
                 }
             }
             var deleted = target.Url is null
-                ? await PurgeFileAsync(target.StorePath!, filter, cancel)
+                ? await PurgeStoreAsync(target.Store!, filter, cancel)
                 : await PurgeRemoteAsync(target, request, cancel);
             await stdout.WriteLineAsync($"deleted {deleted} entries ({what})");
             return ExitCodes.Ok;
@@ -129,39 +122,20 @@ public static class PurgeCommand
         r.OlderThan is null ? null : $"older than {r.OlderThan}",
     }.Where(p => p is not null));
 
-    /// <summary>Counts on a read-only connection with the same conditions the store's purge deletes by.</summary>
-    public static long CountMatching(string storePath, PurgeFilter f)
+    /// <summary>Counts on a read-only open of the store, by the condition the store's purge deletes by.</summary>
+    public static async Task<long> CountMatchingAsync(StoreOptions options, PurgeFilter filter, CancellationToken cancel)
     {
-        var cs = new SqliteConnectionStringBuilder { DataSource = storePath, Mode = SqliteOpenMode.ReadOnly, Pooling = false }.ToString();
-        long? before = f.OlderThan is { } age ? (DateTimeOffset.UtcNow - age).ToUnixTimeMilliseconds() : null;
-        try
-        {
-            using var c = new SqliteConnection(cs);
-            c.Open();
-            return c.ExecuteScalar<long>("""
-                SELECT COUNT(*) FROM entries
-                WHERE (@Lane IS NULL OR lane = @Lane) AND (@PartitionHash IS NULL OR partition_hash = @PartitionHash)
-                  AND (@before IS NULL OR created < @before)
-                """, new { f.Lane, f.PartitionHash, before });
-        }
-        catch (SqliteException e)
-        {
-            throw new StoreException($"{storePath}: {e.Message}", e);
-        }
+        await using var store = await CliStore.OpenAsync(options, StoreAccess.ReadOnly, cancel);
+        return await store.CountMatchingAsync(filter, cancel);
     }
 
     /// <summary>
-    /// Deletes through the store's own purge (one transaction on its writer). A proxy running on the same file keeps
-    /// the deleted ids in its vector index until restart (they then miss); prefer --url while it runs.
+    /// Deletes through the store's own purge (one transaction). A proxy running on the same store learns of it from the
+    /// store's change feed and drops the entries from its index within its poll; --url deletes through that proxy.
     /// </summary>
-    static async Task<long> PurgeFileAsync(string storePath, PurgeFilter filter, CancellationToken cancel)
+    static async Task<long> PurgeStoreAsync(StoreOptions options, PurgeFilter filter, CancellationToken cancel)
     {
-        // Limits far above any real store, so that opening it for a purge never evicts or expires anything on its own
-        // (not TimeSpan.MaxValue: the sweep subtracts the TTL from now).
-        var forever = TimeSpan.FromDays(100 * 365);
-        await using var store = new SqliteRewriteStore(new StoreOptions { Path = storePath, MaxEntries = long.MaxValue, Ttl = forever },
-            new EventsOptions { MaxRows = long.MaxValue, Retention = forever }, NullLogger.Instance);
-        store.Open();
+        await using var store = await CliStore.OpenAsync(options, StoreAccess.ReadWrite, cancel);
         return (await store.PurgeAsync(filter, cancel)).Count;
     }
 

@@ -2,17 +2,16 @@ using System.CommandLine;
 using System.Globalization;
 using System.Text.Json;
 using System.Text.Json.Nodes;
-using Microsoft.Extensions.Logging.Abstractions;
 using RewriteProxy.Admin;
-using RewriteProxy.Cache;
 using RewriteProxy.Cli.Reports;
+using RewriteProxy.Store;
 using Spectre.Console;
 
 namespace RewriteProxy.Cli;
 
 /// <summary>
 /// <c>rewriteproxy stats</c>: per lane entries, hits, hit ratio, tokens saved, drops and refusals by reason, and the
-/// store size; from a store file or from a running proxy's <c>GET /admin/stats</c>. Both print the same JSON with --json.
+/// store size; from the store or from a running proxy's <c>GET /admin/stats</c>. Both print the same JSON with --json.
 /// </summary>
 public static class StatsCommand
 {
@@ -21,7 +20,7 @@ public static class StatsCommand
 
     public static Command Create()
     {
-        var command = new Command("stats", "Show per-lane cache figures of a store file or a running proxy.") { Json };
+        var command = new Command("stats", "Show per-lane cache figures of the store or a running proxy.") { Json };
         Target.AddTo(command);
         command.TreatUnmatchedTokensAsErrors = false;
         command.SetAction(async (parse, cancel) =>
@@ -50,11 +49,11 @@ public static class StatsCommand
             return ExitCodes.Ok;
         }
         foreach (var table in Tables(body)) console.Write(table.ToConsole());
-        console.WriteLine($"store size: {Size(body["storeBytes"]?.GetValue<long>() ?? 0)} ({(target.Url is null ? target.StorePath : target.Url)})");
+        console.WriteLine($"store size: {Size(body["storeBytes"]?.GetValue<long>() ?? 0)} ({target.Describe()})");
         return ExitCodes.Ok;
     }
 
-    /// <summary>The stats as the admin API shapes them, read from the file (read only) or over HTTP.</summary>
+    /// <summary>The stats as the admin API shapes them, read from the store (read only) or over HTTP.</summary>
     public static async Task<JsonNode> ReadAsync(StatsTarget target, CancellationToken cancel)
     {
         if (target.Url is not null)
@@ -62,10 +61,8 @@ public static class StatsCommand
             using var client = new AdminClient(target.AdminRoot, target.Token!);
             return await client.StatsAsync(cancel);
         }
-        var path = target.StorePath!;
-        if (!File.Exists(path)) throw new StoreException($"{path}: no store file there (use --store or Store:Path)");
-        var store = new SqliteRewriteStore(new StoreOptions { Path = path }, new EventsOptions(), NullLogger.Instance);
-        var stats = store.Stats();
+        await using var store = await CliStore.OpenAsync(target.Store!, StoreAccess.ReadOnly, cancel);
+        var stats = await store.StatsAsync(cancel);
         // The same serialiser settings as the admin endpoint's Results.Json, so both sources print the same JSON.
         return JsonSerializer.SerializeToNode(AdminEndpoints.StatsBody(stats), new JsonSerializerOptions(JsonSerializerDefaults.Web))!;
     }

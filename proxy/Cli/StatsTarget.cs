@@ -1,14 +1,15 @@
 using System.CommandLine;
+using RewriteProxy.Store;
 
 namespace RewriteProxy.Cli;
 
-/// <summary>Where stats and purge act: a store file directly, or a running proxy through its admin API.</summary>
-public sealed record StatsTarget(string? StorePath, Uri? Url, string? Token)
+/// <summary>Where stats and purge act: the configured store directly (opened through the store factory), or a running proxy through its admin API.</summary>
+public sealed record StatsTarget(StoreOptions? Store, Uri? Url, string? Token)
 {
     /// <summary>The --store, --url and --token options; each command gets its own instances.</summary>
     public sealed class Options
     {
-        public readonly Option<string?> Store = new("--store") { Description = "SQLite store file (default Store:Path of the configuration)." };
+        public readonly Option<string?> Store = new("--store") { Description = "The store's file; overrides Store:Path of the configuration." };
         public readonly Option<string?> Url = new("--url") { Description = "A running proxy, e.g. http://127.0.0.1:8080 (uses /admin)." };
         public readonly Option<string?> Token = new("--token") { Description = "Admin:Token of the proxy at --url (bearer)." };
 
@@ -35,9 +36,10 @@ public sealed record StatsTarget(string? StorePath, Uri? Url, string? Token)
                 return new StatsTarget(null, url, token);
             }
             if (token is not null) return Fail(commandName, "--token goes with --url");
-            if (store is not null) return new StatsTarget(store, null, null);
+            // --store is a Store:Path alone: it needs no configuration file.
+            if (store is not null) return new StatsTarget(new StoreOptions { Path = store }, null, null);
             if (!Startup.TryLoad(parse, out var options, out _)) return null;
-            return new StatsTarget(options.Store.Path, null, null);
+            return new StatsTarget(options.Store, null, null);
         }
 
         static StatsTarget? Fail(string commandName, string why)
@@ -46,6 +48,9 @@ public sealed record StatsTarget(string? StorePath, Uri? Url, string? Token)
             return null;
         }
     }
+
+    /// <summary>What the figures are read from, for the console: the proxy's URL or the store's settings.</summary>
+    public string Describe() => Url?.ToString() ?? StoreFactory.Describe(Store!);
 
     /// <summary>The admin root with a trailing slash, so that "admin/stats" resolves under any path prefix.</summary>
     public Uri AdminRoot => new(Url!.ToString().EndsWith('/') ? Url.ToString() : Url + "/");

@@ -3,6 +3,7 @@ using System.Diagnostics;
 using System.Globalization;
 using RewriteProxy.Cli.Reports;
 using RewriteProxy.Embedding;
+using RewriteProxy.Store;
 using Spectre.Console;
 
 namespace RewriteProxy.Cli;
@@ -35,7 +36,7 @@ public static class TuneCommand
             "(drift) or {\"question\",\"other\",\"label\":\"same|differ\"} lines (hit threshold).",
     };
     static readonly Option<string?> Out = new("--out") { Description = "Output folder (default tune-<lane>-<yyyyMMdd-HHmmss>)." };
-    static readonly Option<string?> Store = new("--store") { Description = "SQLite store file; overrides Store:Path." };
+    static readonly Option<string?> Store = new("--store") { Description = "The store's file; overrides Store:Path." };
     static readonly Option<double> MaxFalseHits = new("--max-false-hits")
     {
         Description = "Target share of differ pairs that may hit (question pairs).",
@@ -80,8 +81,14 @@ public static class TuneCommand
     }
 
     /// <summary>Runs tune with an embedder made on demand (only labels files need one); errors go to stderr as one line.</summary>
+    /// <param name="request">What to tune.</param>
+    /// <param name="options">The configuration (lanes, Store:*).</param>
+    /// <param name="embedder">Makes the embedder, only when a labels file needs one.</param>
+    /// <param name="console">Where the summary goes.</param>
+    /// <param name="cancel">Stops the run.</param>
+    /// <param name="store">An open store to read the event log from (the demo's); null opens the configured store read-only.</param>
     public static async Task<int> RunAsync(TuneRequest request, RewriteProxyOptions options, Func<IEmbedder> embedder,
-        IAnsiConsole console, CancellationToken cancel)
+        IAnsiConsole console, CancellationToken cancel, IRewriteStore? store = null)
     {
         if (!options.Lanes.TryGetValue(request.Lane, out var lane))
         {
@@ -100,10 +107,11 @@ public static class TuneCommand
         try
         {
             data = request.Labels is null
-                ? TuneInput.ReadEvents(request.StorePath ?? options.Store.Path, lane.Name, now - request.Since)
+                ? await ReadEventsAsync(store, request.StorePath is { } path ? options.Store with { Path = path } : options.Store, lane.Name,
+                    now - request.Since, cancel)
                 : await ScoreLabelsAsync(request.Labels, embedder, console, cancel);
         }
-        catch (TuneInputException e)
+        catch (Exception e) when (e is TuneInputException or StoreException)
         {
             Console.Error.WriteLine($"rewriteproxy: tune: {e.Message}");
             return ExitCodes.Failed;
@@ -130,6 +138,14 @@ public static class TuneCommand
             console.MarkupLine("[yellow]No data: nothing was measured; the snippet repeats the configured values.[/]");
         console.MarkupLineInterpolated($"Wrote {files.Count} files to [bold]{Path.GetFullPath(dir)}[/] in {clock.Elapsed.TotalSeconds:0.0} s (report: {TuneReport.ReportFile}).");
         return ExitCodes.Ok;
+    }
+
+    static async Task<TuneData> ReadEventsAsync(IRewriteStore? open, StoreOptions options, string lane, DateTimeOffset since,
+        CancellationToken cancel)
+    {
+        if (open is not null) return await TuneInput.ReadEventsAsync(open, lane, since, cancel);
+        await using var store = await CliStore.OpenAsync(options, StoreAccess.ReadOnly, cancel);
+        return await TuneInput.ReadEventsAsync(store, lane, since, cancel);
     }
 
     static async Task<TuneData> ScoreLabelsAsync(string path, Func<IEmbedder> makeEmbedder, IAnsiConsole console, CancellationToken cancel)

@@ -1,8 +1,7 @@
 using System.Text.Json;
-using Dapper;
-using Microsoft.Data.Sqlite;
 using RewriteProxy.Cache;
 using RewriteProxy.Embedding;
+using RewriteProxy.Store;
 
 namespace RewriteProxy.Cli;
 
@@ -32,44 +31,26 @@ public static class TuneInput
     public const int EmbedBatch = 32;
 
     /// <summary>
-    /// Rewrites and guard refusals of one lane from the event log, on a read-only connection that never creates the
-    /// file. Only the scored columns are read (not question and candidate texts, as SqliteRewriteStore.Events does),
-    /// so a full log of a million events fits in a few tens of megabytes.
+    /// Rewrites and guard refusals of one lane from the store's event log. Only the scored columns are read (not the
+    /// question and candidate texts), so a full log of a million events fits in a few tens of megabytes.
     /// </summary>
-    public static TuneData ReadEvents(string storePath, string lane, DateTimeOffset since)
+    public static async Task<TuneData> ReadEventsAsync(IRewriteStore store, string lane, DateTimeOffset since, CancellationToken cancel)
     {
-        if (!File.Exists(storePath)) throw new TuneInputException($"{storePath}: no store file there (use --store or Store:Path)");
         var drifts = new List<DriftSample>();
         var refusals = new Dictionary<string, int>();
-        long? first = null, last = null;
-        var cs = new SqliteConnectionStringBuilder { DataSource = storePath, Mode = SqliteOpenMode.ReadOnly, Pooling = false }.ToString();
-        try
+        DateTimeOffset? first = null, last = null;
+        await foreach (var e in store.ScoredEventsAsync(lane, since, cancel))
         {
-            using var c = new SqliteConnection(cs);
-            c.Open();
-            using var reader = c.ExecuteReader("""
-                SELECT at, kind, verdict, score, reason FROM events
-                WHERE lane = @lane AND at >= @since AND kind IN ('rewrite', 'guard') ORDER BY at
-                """, new { lane, since = since.ToUnixTimeMilliseconds() });
-            while (reader.Read())
+            first ??= e.At;
+            last = e.At;
+            if (e.Kind == "rewrite") drifts.Add(new DriftSample(string.Intern(e.Verdict), e.Score));
+            else
             {
-                var at = reader.GetInt64(0);
-                first ??= at;
-                last = at;
-                if (reader.GetString(1) == "rewrite") drifts.Add(new DriftSample(string.Intern(reader.GetString(2)), reader.GetDouble(3)));
-                else
-                {
-                    var reason = reader.IsDBNull(4) ? "" : reader.GetString(4);
-                    refusals[reason] = refusals.GetValueOrDefault(reason) + 1;
-                }
+                var reason = e.Reason ?? "";
+                refusals[reason] = refusals.GetValueOrDefault(reason) + 1;
             }
         }
-        catch (SqliteException e)
-        {
-            throw new TuneInputException($"{storePath}: cannot read the event log: {e.Message}");
-        }
-        return new TuneData(TuneSource.Events, $"event log of {storePath}", drifts, [], refusals,
-            first is { } a ? DateTimeOffset.FromUnixTimeMilliseconds(a) : null, last is { } b ? DateTimeOffset.FromUnixTimeMilliseconds(b) : null);
+        return new TuneData(TuneSource.Events, $"event log of {store.Location}", drifts, [], refusals, first, last);
     }
 
     /// <summary>

@@ -7,6 +7,7 @@ using RewriteProxy.Embedding;
 using RewriteProxy.Forwarding;
 using RewriteProxy.Guard;
 using RewriteProxy.Lanes;
+using RewriteProxy.Store;
 using RewriteProxy.Telemetry;
 
 namespace RewriteProxy.Hosting;
@@ -26,12 +27,19 @@ public static class OptionsReader
         var upstream = baseUrl is null ? null : new UpstreamOptions { BaseUrl = baseUrl, Timeout = timeout };
 
         StoreOptions storeDefaults = new();
+        var provider = r.Choice("Store:Provider", storeDefaults.Provider);
+        var storePath = r.String("Store:Path") ?? storeDefaults.Path;
         var store = new StoreOptions
         {
-            Path = r.String("Store:Path") ?? storeDefaults.Path,
+            Provider = provider,
+            Path = storePath,
+            ConnectionString = r.String("Store:ConnectionString"),
             MaxEntries = r.Long("Store:MaxEntries", storeDefaults.MaxEntries, min: 1),
             Ttl = r.Duration("Store:Ttl", storeDefaults.Ttl, positive: true),
+            // Empty (not absent) turns snapshots off, so this one key is read as written.
+            IndexSnapshotPath = config["Store:IndexSnapshotPath"]?.Trim() ?? StoreOptions.SnapshotPathFor(provider, storePath),
         };
+        foreach (var problem in StoreFactory.Problems(store)) r.Error(problem);
         EmbeddingOptions embeddingDefaults = new();
         var embedding = new EmbeddingOptions
         {

@@ -11,6 +11,7 @@ using RewriteProxy.Cache;
 using RewriteProxy.Embedding;
 using RewriteProxy.Forwarding;
 using RewriteProxy.Lanes;
+using RewriteProxy.Store;
 using RewriteProxy.Telemetry;
 using RewriteProxy.Wire;
 
@@ -65,11 +66,14 @@ public static class ProxyApp
         // As wide as the loaded model's vectors: Embedding:ModelPath may name a model of another width.
         services.AddSingleton(sp => new VectorIndex(sp.GetRequiredService<IEmbedder>().Dimension));
         services.AddSingleton(_ => new AnchorGuard());
-        services.AddSingleton<IRewriteStore>(sp => new SqliteRewriteStore(options.Store, options.Events,
-            sp.GetRequiredService<ILoggerFactory>().CreateLogger("store")));
-        services.AddSingleton(sp => new SemanticCache(sp.GetRequiredService<IRewriteStore>(), sp.GetRequiredService<VectorIndex>(),
-            sp.GetRequiredService<IEmbedder>(), sp.GetRequiredService<AnchorGuard>(), sp.GetRequiredService<LaneTally>(), options.Store,
+        services.AddSingleton(sp => StoreFactory.Create(options.Store, options.Events, sp.GetRequiredService<ILoggerFactory>()));
+        services.AddSingleton(_ => new HotEntries());
+        services.AddSingleton(sp => new IndexFollower(sp.GetRequiredService<IRewriteStore>(), sp.GetRequiredService<VectorIndex>(),
+            sp.GetRequiredService<HotEntries>(), sp.GetRequiredService<IEmbedder>().ModelId,
             sp.GetRequiredService<ILoggerFactory>().CreateLogger("cache")));
+        services.AddSingleton(sp => new SemanticCache(sp.GetRequiredService<IRewriteStore>(), sp.GetRequiredService<VectorIndex>(),
+            sp.GetRequiredService<HotEntries>(), sp.GetRequiredService<IEmbedder>(), sp.GetRequiredService<AnchorGuard>(),
+            sp.GetRequiredService<LaneTally>(), options.Store));
         services.AddSingleton<IRewriteCache>(sp => sp.GetRequiredService<SemanticCache>());
         services.AddSingleton<EntryGauge>();
         overrides?.Invoke(services);
@@ -88,10 +92,13 @@ public static class ProxyApp
         readiness.Expect("cache");
         try
         {
-            var cache = app.Services.GetRequiredService<SemanticCache>();
-            cache.Start();
-            app.Services.GetRequiredService<QuestionFinder>().LoadTemplates();
-            app.Lifetime.ApplicationStarted.Register(() => _ = cache.LoadIndexAsync());
+            app.Services.GetRequiredService<SemanticCache>();
+            var store = app.Services.GetRequiredService<IRewriteStore>();
+            // Before listening, so a store that cannot be opened is one start-up error; start-up may wait on it.
+            store.OpenAsync(StoreAccess.ReadWrite, CancellationToken.None).GetAwaiter().GetResult();
+            app.Services.GetRequiredService<QuestionFinder>().LoadTemplatesAsync(CancellationToken.None).GetAwaiter().GetResult();
+            var follower = app.Services.GetRequiredService<IndexFollower>();
+            app.Lifetime.ApplicationStarted.Register(() => _ = follower.StartWithRebuildAsync());
         }
         catch (EmbedderLoadException e)
         {
@@ -99,7 +106,7 @@ public static class ProxyApp
         }
         catch (StoreException e)
         {
-            throw new StartupException($"store: {e.Message} (Store:Path)", e);
+            throw new StartupException($"store: {e.Message} ({StoreFactory.WhereKey(options.Store)})", e);
         }
         ProxyMetrics.Declare(options.Lanes.Values);
         var gauge = app.Services.GetRequiredService<EntryGauge>();

@@ -1,5 +1,6 @@
 using Microsoft.AspNetCore.Http;
 using RewriteProxy.Cache;
+using RewriteProxy.Store;
 using RewriteProxy.Wire;
 
 namespace RewriteProxy.Lanes;

@@ -2,6 +2,7 @@ using Microsoft.AspNetCore.Http;
 using RewriteProxy.Cache;
 using RewriteProxy.Forwarding;
 using RewriteProxy.Guard;
+using RewriteProxy.Store;
 using RewriteProxy.Telemetry;
 using RewriteProxy.Wire;
 
@@ -62,9 +63,11 @@ public sealed class LaneRouter(RewriteProxyOptions options, IRewriteCache cache,
             try
             {
                 // Unsure where the question is: only the whole message, exactly, is safe to look up.
-                found = located.Confident ? cache.Lookup(key, lane.HitSimilarity) : cache.LookupExact(key);
+                var aborted = context.RequestAborted;
+                found = located.Confident ? await cache.LookupAsync(key, lane.HitSimilarity, aborted) : await cache.LookupExactAsync(key, aborted);
                 if (found.Kind == LookupKind.Miss && located.EarlierScope is { } earlier
-                    && cache.LookupExact(key with { ScopeKey = earlier, Normalized = located.WholeNormalized! }) is { Kind: LookupKind.HitExact } before)
+                    && await cache.LookupExactAsync(key with { ScopeKey = earlier, Normalized = located.WholeNormalized! }, aborted)
+                        is { Kind: LookupKind.HitExact } before)
                     found = before;
             }
             catch (CacheFailure f)

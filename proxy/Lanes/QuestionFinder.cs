@@ -3,6 +3,7 @@ using System.Text;
 using Microsoft.Extensions.Logging;
 using RewriteProxy.Cache;
 using RewriteProxy.Hosting;
+using RewriteProxy.Store;
 using RewriteProxy.Telemetry;
 
 namespace RewriteProxy.Lanes;
@@ -41,11 +42,11 @@ public sealed class QuestionFinder(IRewriteStore store, RewriteProxyOptions opti
     }
 
     /// <summary>Makes the templates the store kept (younger than Store:Ttl) known again; called once at start.</summary>
-    public void LoadTemplates()
+    public async Task LoadTemplatesAsync(CancellationToken cancel)
     {
         try
         {
-            var rows = store.Templates(DateTimeOffset.UtcNow - options.Store.Ttl);
+            var rows = await store.TemplatesAsync(DateTimeOffset.UtcNow - options.Store.Ttl, cancel);
             _learner.Load(rows.Select(r => new LearnedTemplate(r.Lane, r.LearnKey, r.PartitionHash, r.Prefix, r.Suffix, r.LearnedFrom, r.LearnedAt)));
             if (rows.Count > 0) log.LogInformation("loaded {Count} learned prompt templates", rows.Count);
         }

@@ -3,6 +3,7 @@ using Microsoft.Extensions.Hosting;
 using Microsoft.Extensions.Logging;
 using RewriteProxy.Cache;
 using RewriteProxy.Guard;
+using RewriteProxy.Store;
 using RewriteProxy.Telemetry;
 using RewriteProxy.Wire;
 

@@ -1,5 +1,6 @@
 using Prometheus;
 using RewriteProxy.Cache;
+using RewriteProxy.Store;
 
 namespace RewriteProxy.Telemetry;
 
@@ -11,18 +12,18 @@ public sealed class EntryGauge(IRewriteStore store, RewriteProxyOptions options)
     DateTimeOffset _last = DateTimeOffset.MinValue;
     volatile bool _stopped;
 
-    public void Register() => Prometheus.Metrics.DefaultRegistry.AddBeforeCollectCallback(Refresh);
+    public void Register() => Prometheus.Metrics.DefaultRegistry.AddBeforeCollectCallback(RefreshAsync);
 
     /// <summary>prometheus-net cannot remove a callback; a stopped app's callback does nothing.</summary>
     public void Stop() => _stopped = true;
 
-    public void Refresh()
+    public async Task RefreshAsync(CancellationToken cancel)
     {
         if (_stopped || DateTimeOffset.UtcNow - _last < MinInterval) return;
         _last = DateTimeOffset.UtcNow;
         try
         {
-            var stats = store.Stats();
+            var stats = await store.StatsAsync(cancel);
             foreach (var lane in options.Lanes.Keys)
                 ProxyMetrics.Entries.WithLabels(lane).Set(stats.Lanes.FirstOrDefault(l => l.Lane.Equals(lane, StringComparison.OrdinalIgnoreCase))?.Entries ?? 0);
         }

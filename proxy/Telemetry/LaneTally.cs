@@ -1,5 +1,6 @@
 using RewriteProxy.Cache;
 using RewriteProxy.Guard;
+using RewriteProxy.Store;
 
 namespace RewriteProxy.Telemetry;
 

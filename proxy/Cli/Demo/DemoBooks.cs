@@ -1,4 +1,5 @@
 using RewriteProxy.Cache;
+using RewriteProxy.Store;
 
 namespace RewriteProxy.Cli.Demo;
 

@@ -5,13 +5,13 @@ using System.Text;
 using System.Text.Json;
 using System.Text.Json.Nodes;
 using Microsoft.AspNetCore.Builder;
-using Microsoft.Data.Sqlite;
 using Microsoft.Extensions.Configuration;
 using Microsoft.Extensions.DependencyInjection;
 using RewriteProxy.Cache;
 using RewriteProxy.Embedding;
 using RewriteProxy.Hosting;
 using RewriteProxy.Lanes;
+using RewriteProxy.Store;
 
 namespace RewriteProxy.Cli.Demo;
 
@@ -69,14 +69,13 @@ public static class DemoRunner
                 var store = app.Services.GetRequiredService<IRewriteStore>();
                 await store.FlushAsync(cancel);
                 var after = await ScrapeAsync(http, cancel);
-                var stats = store.Stats();
-                var events = (store as SqliteRewriteStore)?.Events(null, since.AddSeconds(-1))
-                             ?? throw new DemoException("the demo reads the event log of the SQLite store");
+                var stats = await store.StatsAsync(cancel);
+                var events = await store.EventsAsync(null, since.AddSeconds(-1), cancel).ToListAsync(cancel);
                 var lanes = DemoWorkload.Lanes.Select(l => DemoBooks.Summarize(l, observations, upstream, before, after)).ToList();
-                var entries = (store as SqliteRewriteStore)!.List(null, null, null, int.MaxValue);
+                var entries = (await store.ListAsync(new EntryQuery(Limit: int.MaxValue), cancel)).ToList();
                 var checks = DemoWorkload.Lanes.SelectMany(l => DemoBooks.Reconcile(l, observations, upstream, before, after, stats, entries, events))
                     .ToList();
-                var reports = await WriteTuneReportsAsync(settings, options, storePath, app.Services.GetRequiredService<IEmbedder>(), cancel);
+                var reports = await WriteTuneReportsAsync(settings, options, store, app.Services.GetRequiredService<IEmbedder>(), cancel);
                 await app.StopAsync(cancel);
                 var result = new DemoResult
                 {
@@ -197,7 +196,7 @@ public static class DemoRunner
     /// The tuning report of each lane over this run's event log (<c>rewriteproxy tune</c>), into <c>{out}/tune-{lane}</c>.
     /// Its console summary is not shown: the demo's own tables say the same.
     /// </summary>
-    static async Task<IReadOnlyList<string>> WriteTuneReportsAsync(DemoSettings settings, RewriteProxyOptions options, string storePath,
+    static async Task<IReadOnlyList<string>> WriteTuneReportsAsync(DemoSettings settings, RewriteProxyOptions options, IRewriteStore store,
         IEmbedder embedder, CancellationToken cancel)
     {
         if (settings.OutDirectory is not { } dir) return [];
@@ -209,8 +208,8 @@ public static class DemoRunner
         foreach (var lane in DemoWorkload.Lanes)
         {
             var outDir = Path.GetFullPath(Path.Combine(dir, "tune-" + lane));
-            var request = new TuneRequest(lane, TimeSpan.FromDays(1), null, outDir, TuneSweep.DefaultMaxFalseHits, TuneSweep.DefaultKeepGood, storePath);
-            var exit = await TuneCommand.RunAsync(request, options, () => embedder, quiet, cancel);
+            var request = new TuneRequest(lane, TimeSpan.FromDays(1), null, outDir, TuneSweep.DefaultMaxFalseHits, TuneSweep.DefaultKeepGood, null);
+            var exit = await TuneCommand.RunAsync(request, options, () => embedder, quiet, cancel, store);
             if (exit != ExitCodes.Ok) throw new DemoException($"the tuning report of lane '{lane}' failed (exit {exit})");
             written.Add(Path.Combine(outDir, "report.md"));
         }

@@ -9,6 +9,7 @@ using RewriteProxy.Cache;
 using RewriteProxy.Embedding;
 using RewriteProxy.Hosting;
 using RewriteProxy.Lanes;
+using RewriteProxy.Store;
 using RewriteProxy.Wire;
 
 namespace RewriteProxy.Benchmarks.Hits;
@@ -72,7 +73,7 @@ public static class HitStages
             var near = index.Search(scope, vector, SemanticCache.Candidates, (float)lane.HitSimilarity);
             if (near.Count == 0) throw new InvalidOperationException("the index has no candidate for the paraphrase");
             long id = near[0].Id;
-            var entry = store.Get(id, minCreated)!;
+            var entry = (await store.GetAsync(id, minCreated, CancellationToken.None))!;
             var asked = guard.Extract(Paraphrase);
 
             var stages = new (string Name, Func<object?> Run)[]
@@ -84,16 +85,16 @@ public static class HitStages
                     var s = QuestionExtractor.Extract(r, lane).Site!;
                     return ScopeKey.Compute(lane, endpoint, r, s, PartitionKey.Of(options.Partition, credential), "") + QuestionText.Normalize(s.Question);
                 }),
-                ("store.FindExact (no row: paraphrase)", () => store.FindExact(scope, normalized, minCreated)),
-                ("store.FindExact (row: question)", () => store.FindExact(scope, questionNormalized, minCreated)),
+                ("store.FindExactAsync (no row: paraphrase)", () => store.FindExactAsync(scope, normalized, minCreated, CancellationToken.None).AsTask().GetAwaiter().GetResult()),
+                ("store.FindExactAsync (row: question)", () => store.FindExactAsync(scope, questionNormalized, minCreated, CancellationToken.None).AsTask().GetAwaiter().GetResult()),
                 ("embed the question (model run + tokens)", () => embedder.Embed(Paraphrase)),
                 ("index.Search (k = 4)", () => index.Search(scope, vector, SemanticCache.Candidates, (float)lane.HitSimilarity)),
-                ("store.Get (one candidate)", () => store.Get(id, minCreated)),
+                ("store.GetAsync (one candidate)", () => store.GetAsync(id, minCreated, CancellationToken.None).AsTask().GetAwaiter().GetResult()),
                 ("guard.Extract (asked question)", () => guard.Extract(Paraphrase)),
                 ("guard.Extract (candidate's question)", () => guard.Extract(entry.Question)),
                 ("guard.Compare (extracted anchors)", () => guard.Compare(asked, guard.Extract(entry.Question))),
-                ("cache.Lookup, exact hit (whole)", () => cache.Lookup(new CacheKey(lane.Name, scope, partition, Question, questionNormalized), lane.HitSimilarity)),
-                ("cache.Lookup, semantic hit (whole)", () => cache.Lookup(new CacheKey(lane.Name, scope, partition, Paraphrase, normalized), lane.HitSimilarity)),
+                ("cache.LookupAsync, exact hit (whole)", () => cache.LookupAsync(new CacheKey(lane.Name, scope, partition, Question, questionNormalized), lane.HitSimilarity, CancellationToken.None).AsTask().GetAwaiter().GetResult()),
+                ("cache.LookupAsync, semantic hit (whole)", () => cache.LookupAsync(new CacheKey(lane.Name, scope, partition, Paraphrase, normalized), lane.HitSimilarity, CancellationToken.None).AsTask().GetAwaiter().GetResult()),
                 ("HTTP exact hit (whole call)", () => PostAsync(client, questionBody).GetAwaiter().GetResult()),
                 ("HTTP semantic hit (whole call)", () => PostAsync(client, paraphraseBody).GetAwaiter().GetResult()),
                 ("HTTP GET /healthz (empty round trip)", () => client.GetStringAsync("/healthz").GetAwaiter().GetResult()),

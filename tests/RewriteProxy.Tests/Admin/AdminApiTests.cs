@@ -3,6 +3,7 @@ using System.Net.Http.Headers;
 using System.Net.Http.Json;
 using System.Text.Json.Nodes;
 using Microsoft.Extensions.DependencyInjection;
+using RewriteProxy.Store;
 using RewriteProxy.Tests.Fixtures;
 
 namespace RewriteProxy.Tests.Admin;
@@ -57,7 +58,7 @@ public sealed class AdminApiTests : UpstreamAndProxy
         await Proxy.AskAsync("draft", "Where is the bottle bank?");
         await Proxy.AskAsync("draft", "Who collects garden waste?");
         await Proxy.AskAsync("siblings", "Who collects garden waste?");
-        await Proxy.Services.GetRequiredService<RewriteProxy.Cache.IRewriteStore>().FlushAsync(CancellationToken.None);
+        await Proxy.Services.GetRequiredService<RewriteProxy.Store.IRewriteStore>().FlushAsync(CancellationToken.None);
 
         using var stats = await Proxy.Client.SendAsync(Admin(HttpMethod.Get, "/admin/stats"));
         var lanes = (await stats.Content.ReadFromJsonAsync<JsonObject>())!["lanes"]!.AsArray();

@@ -1,6 +1,7 @@
 using Microsoft.Extensions.DependencyInjection;
 using RewriteProxy.Cache;
 using RewriteProxy.Embedding;
+using RewriteProxy.Store;
 using RewriteProxy.Tests.Fixtures;
 
 namespace RewriteProxy.Tests.Cache;
@@ -107,7 +108,7 @@ public sealed class CacheFailureTests : UpstreamAndProxy
         Assert.Equal("miss", guard2.Cache); // nothing unguarded was stored
         Assert.Equal("A draft answer: " + question, guard2.Content);
         Assert.True(afterGuard - afterLookup >= 2, $"fail-open count rose by {afterGuard - afterLookup}");
-        Assert.Equal(0, proxy.Services.GetRequiredService<IRewriteStore>().Stats().Lanes.Sum(l => l.Entries));
+        Assert.Equal(0, (await proxy.Services.GetRequiredService<IRewriteStore>().StatsAsync(CancellationToken.None)).Lanes.Sum(l => l.Entries));
 
         embedder.Fail = FaultyEmbedder.Mode.Never;
         Assert.Equal("miss", (await proxy.AskAsync("draft", question)).Cache);

@@ -1,6 +1,7 @@
 using Microsoft.Extensions.Logging.Abstractions;
 using RewriteProxy.Cache;
 using RewriteProxy.Embedding;
+using RewriteProxy.Store;
 using RewriteProxy.Telemetry;
 using RewriteProxy.Tests.Fixtures;
 
@@ -18,16 +19,15 @@ public sealed class SemanticCacheTests : IAsyncLifetime
 
     readonly string _path = TestProxy.NewStorePath();
     readonly TableEmbedder _embedder = new(Width);
-    SqliteRewriteStore _store = null!;
+    IRewriteStore _store = null!;
     SemanticCache _cache = null!;
 
-    public Task InitializeAsync()
+    public async Task InitializeAsync()
     {
-        _store = new SqliteRewriteStore(new StoreOptions { Path = _path }, new EventsOptions(), NullLogger.Instance);
-        _cache = new SemanticCache(_store, new VectorIndex(Width), _embedder, new AnchorGuard(), new LaneTally(_store),
-            new StoreOptions { Path = _path }, NullLogger.Instance);
-        _cache.Start();
-        return Task.CompletedTask;
+        _store = StoreFactory.Create(new StoreOptions { Path = _path }, new EventsOptions(), NullLoggerFactory.Instance);
+        _cache = new SemanticCache(_store, new VectorIndex(Width), new HotEntries(), _embedder, new AnchorGuard(), new LaneTally(_store),
+            new StoreOptions { Path = _path });
+        await _store.OpenAsync(StoreAccess.ReadWrite, CancellationToken.None);
     }
 
     public async Task DisposeAsync()
@@ -53,9 +53,9 @@ public sealed class SemanticCacheTests : IAsyncLifetime
         await StoreAsync("Where is the pool?", 1, 0, 0, 0);
         _embedder.Set("Where can I find the pool?", 0.95f, 0.31f, 0, 0);
 
-        var exact = _cache.Lookup(Key("where is the pool"), 0.85);
-        var semantic = _cache.Lookup(Key("Where can I find the pool?"), 0.85);
-        var otherScope = _cache.Lookup(Key("Where can I find the pool?", scope: "scope-b"), 0.85);
+        var exact = await _cache.LookupAsync(Key("where is the pool"), 0.85, CancellationToken.None);
+        var semantic = await _cache.LookupAsync(Key("Where can I find the pool?"), 0.85, CancellationToken.None);
+        var otherScope = await _cache.LookupAsync(Key("Where can I find the pool?", scope: "scope-b"), 0.85, CancellationToken.None);
 
         Assert.Equal(LookupKind.HitExact, exact.Kind);
         Assert.Equal("Draft for: Where is the pool?", exact.Entry!.Content);
@@ -73,32 +73,33 @@ public sealed class SemanticCacheTests : IAsyncLifetime
         await StoreAsync("What were the pool's opening hours in 2022?", 0, 1, 0, 0);
         _embedder.Set("What were the pool's opening hours in 2023?", 0, 1, 0, 0);
 
-        var found = _cache.Lookup(Key("What were the pool's opening hours in 2023?"), 0.85);
+        var found = await _cache.LookupAsync(Key("What were the pool's opening hours in 2023?"), 0.85, CancellationToken.None);
         await _store.FlushAsync(CancellationToken.None);
 
         Assert.Equal(LookupKind.Miss, found.Kind);
-        var stats = Assert.Single(_store.Stats().Lanes, l => l.Lane == Lane);
+        var stats = Assert.Single((await _store.StatsAsync(CancellationToken.None)).Lanes, l => l.Lane == Lane);
         Assert.Equal(1, stats.RefusalsByReason[LabelValue.Of(AnchorReason.Number)]);
-        var logged = Assert.Single(_store.Events(Lane, since), e => e.Kind == "guard");
+        var logged = Assert.Single(await _store.EventsAsync(Lane, since, CancellationToken.None).ToListAsync(), e => e.Kind == "guard");
         Assert.Equal(("refused", "number"), (logged.Verdict, logged.Reason));
     }
 
     [Fact]
-    public void An_embedder_failure_is_a_cache_failure_of_the_embedder()
+    public async Task An_embedder_failure_is_a_cache_failure_of_the_embedder()
     {
         _embedder.Failing = true;
 
-        var failure = Assert.Throws<CacheFailure>(() => _cache.Lookup(Key("Where is the pool?"), 0.85));
+        var failure = await Assert.ThrowsAsync<CacheFailure>(async () => await _cache.LookupAsync(Key("Where is the pool?"), 0.85, CancellationToken.None));
         Assert.Equal(FailOpenReason.Embedder, failure.Reason);
         Assert.Equal(FailOpenReason.Embedder, Assert.Throws<CacheFailure>(() => _cache.Embed(["a draft"])).Reason);
     }
 
     [Fact]
-    public void A_store_that_is_gone_is_a_cache_failure_of_the_store()
+    public async Task A_store_that_is_gone_is_a_cache_failure_of_the_store()
     {
         File.Delete(_path);
 
-        Assert.Equal(FailOpenReason.Store, Assert.Throws<CacheFailure>(() => _cache.Lookup(Key("Where is the pool?"), 0.85)).Reason);
+        Assert.Equal(FailOpenReason.Store,
+            (await Assert.ThrowsAsync<CacheFailure>(async () => await _cache.LookupAsync(Key("Where is the pool?"), 0.85, CancellationToken.None))).Reason);
     }
 
     [Fact]
@@ -113,8 +114,8 @@ public sealed class SemanticCacheTests : IAsyncLifetime
     [Fact]
     public void The_index_must_be_as_wide_as_the_embedders_vectors()
     {
-        Assert.Throws<ArgumentException>(() => new SemanticCache(_store, new VectorIndex(Width + 1), _embedder, new AnchorGuard(),
-            new LaneTally(_store), new StoreOptions { Path = _path }, NullLogger.Instance));
+        Assert.Throws<ArgumentException>(() => new SemanticCache(_store, new VectorIndex(Width + 1), new HotEntries(), _embedder, new AnchorGuard(),
+            new LaneTally(_store), new StoreOptions { Path = _path }));
     }
 
     /// <summary>Vectors chosen by the test, L2-normalised; unknown texts get a vector of their own from their hash.</summary>

@@ -1,7 +1,9 @@
 using Microsoft.Extensions.Configuration;
 using Microsoft.Extensions.Logging.Abstractions;
 using RewriteProxy.Cache;
+using RewriteProxy.Cli;
 using RewriteProxy.Hosting;
+using RewriteProxy.Store;
 using Spectre.Console;
 
 namespace RewriteProxy.Tests.Cli;
@@ -46,13 +48,16 @@ static class CliTestKit
     }
 
     /// <summary>A real store, opened (migrations applied) with limits that never evict or expire during a test.</summary>
-    public static SqliteRewriteStore OpenStore(string path)
+    public static async Task<IRewriteStore> OpenStoreAsync(string path)
     {
-        var store = new SqliteRewriteStore(new StoreOptions { Path = path, Ttl = TimeSpan.FromDays(3650) },
-            new EventsOptions { Retention = TimeSpan.FromDays(3650) }, NullLogger.Instance);
-        store.Open();
+        var store = StoreFactory.Create(new StoreOptions { Path = path, Ttl = TimeSpan.FromDays(3650) },
+            new EventsOptions { Retention = TimeSpan.FromDays(3650) }, NullLoggerFactory.Instance);
+        await store.OpenAsync(StoreAccess.ReadWrite, CancellationToken.None);
         return store;
     }
+
+    /// <summary>The stats and purge target of a store file (what --store gives).</summary>
+    public static StatsTarget Target(string path) => new(new StoreOptions { Path = path }, null, null);
 
     public static NewEntry Entry(string lane, string question, string partition = "p-larkmoor", DateTimeOffset? created = null,
         int promptTokens = 30, int completionTokens = 70) =>

@@ -1,6 +1,7 @@
 using Microsoft.Extensions.DependencyInjection;
 using RewriteProxy.Cache;
 using RewriteProxy.Cli;
+using RewriteProxy.Store;
 using RewriteProxy.Tests.Fixtures;
 
 namespace RewriteProxy.Tests.Cli;
@@ -14,7 +15,7 @@ public class PurgeCommandTests
     static async Task<string> StoreAsync()
     {
         var path = Path.Combine(CliTestKit.NewFolder(), "cache.db");
-        await using var store = CliTestKit.OpenStore(path);
+        await using var store = await CliTestKit.OpenStoreAsync(path);
         await FillAsync(store);
         return path;
     }
@@ -28,8 +29,8 @@ public class PurgeCommandTests
         await store.AddAsync(CliTestKit.Entry("siblings", "How do I unlock a bike?", partition: "p-other"), CancellationToken.None);
     }
 
-    static long Entries(string path, string lane) =>
-        PurgeCommand.CountMatching(path, new PurgeFilter(Lane: lane));
+    static Task<long> EntriesAsync(string path, string lane) =>
+        PurgeCommand.CountMatchingAsync(new StoreOptions { Path = path }, new PurgeFilter(Lane: lane), CancellationToken.None);
 
     static async Task<(int Code, string Out, string Err)> RunAsync(StatsTarget target, PurgeRequest request, TextReader? terminal = null)
     {
@@ -42,29 +43,29 @@ public class PurgeCommandTests
     public async Task Dry_run_counts_the_matching_entries_and_deletes_nothing()
     {
         var path = await StoreAsync();
-        var (code, output, _) = await RunAsync(new StatsTarget(path, null, null), new PurgeRequest("draft", null, "7d", DryRun: true, Yes: false));
+        var (code, output, _) = await RunAsync(CliTestKit.Target(path), new PurgeRequest("draft", null, "7d", DryRun: true, Yes: false));
 
         Assert.Equal(ExitCodes.Ok, code);
         Assert.Contains("would delete 1 entries (lane draft, older than 7d)", output);
-        Assert.Equal(3, Entries(path, "draft"));
+        Assert.Equal(3, await EntriesAsync(path, "draft"));
     }
 
     [Fact]
     public async Task Without_a_terminal_purge_deletes_only_with_yes()
     {
         var path = await StoreAsync();
-        var target = new StatsTarget(path, null, null);
+        var target = CliTestKit.Target(path);
 
         var refused = await RunAsync(target, new PurgeRequest("draft", null, null, DryRun: false, Yes: false), terminal: null);
         Assert.Equal(ExitCodes.Failed, refused.Code);
         Assert.Contains("add --yes to delete the 3 entries", refused.Err);
-        Assert.Equal(3, Entries(path, "draft"));
+        Assert.Equal(3, await EntriesAsync(path, "draft"));
 
         var done = await RunAsync(target, new PurgeRequest("draft", null, null, DryRun: false, Yes: true));
         Assert.Equal(ExitCodes.Ok, done.Code);
         Assert.Contains("deleted 3 entries (lane draft)", done.Out);
-        Assert.Equal(0, Entries(path, "draft"));
-        Assert.Equal(1, Entries(path, "siblings"));
+        Assert.Equal(0, await EntriesAsync(path, "draft"));
+        Assert.Equal(1, await EntriesAsync(path, "siblings"));
         var stats = await StatsCommand.ReadAsync(target, CancellationToken.None);
         Assert.DoesNotContain(stats["lanes"]!.AsArray(), l => (string)l!["lane"]! == "draft" && (long)l["entries"]! > 0);
     }
@@ -73,16 +74,16 @@ public class PurgeCommandTests
     public async Task On_a_terminal_purge_asks_and_deletes_only_on_yes()
     {
         var path = await StoreAsync();
-        var target = new StatsTarget(path, null, null);
+        var target = CliTestKit.Target(path);
 
         var no = await RunAsync(target, new PurgeRequest(null, "p-other", null, false, false), new StringReader("n\n"));
         Assert.Contains("Delete 1 entries (partition p-other)? [y/N]", no.Out);
-        Assert.Equal(1, Entries(path, "siblings"));
+        Assert.Equal(1, await EntriesAsync(path, "siblings"));
 
         var yes = await RunAsync(target, new PurgeRequest(null, "p-other", null, false, false), new StringReader("y\n"));
         Assert.Equal(ExitCodes.Ok, yes.Code);
-        Assert.Equal(0, Entries(path, "siblings"));
-        Assert.Equal(3, Entries(path, "draft"));
+        Assert.Equal(0, await EntriesAsync(path, "siblings"));
+        Assert.Equal(3, await EntriesAsync(path, "draft"));
     }
 
     [Fact]
@@ -108,10 +109,10 @@ public class PurgeCommandTests
     public async Task An_unparsable_age_is_refused()
     {
         var path = await StoreAsync();
-        var (code, _, err) = await RunAsync(new StatsTarget(path, null, null), new PurgeRequest(null, null, "a week", false, true));
+        var (code, _, err) = await RunAsync(CliTestKit.Target(path), new PurgeRequest(null, null, "a week", false, true));
         Assert.Equal(ExitCodes.BadConfiguration, code);
         Assert.Contains("--older-than 'a week' is not a duration", err);
-        Assert.Equal(3, Entries(path, "draft"));
+        Assert.Equal(3, await EntriesAsync(path, "draft"));
     }
 
     [Fact]
@@ -127,6 +128,6 @@ public class PurgeCommandTests
         var (code, output, err) = await RunAsync(target, new PurgeRequest("draft", null, "7d", false, Yes: true));
         Assert.True(code == ExitCodes.Ok, err);
         Assert.Contains("deleted 1 entries (lane draft, older than 7d)", output);
-        Assert.Equal(2, Entries(proxy.Options.Store.Path, "draft"));
+        Assert.Equal(2, await EntriesAsync(proxy.Options.Store.Path, "draft"));
     }
 }

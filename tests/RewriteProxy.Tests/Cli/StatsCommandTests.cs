@@ -2,6 +2,7 @@ using System.Text.Json.Nodes;
 using Microsoft.Extensions.DependencyInjection;
 using RewriteProxy.Cache;
 using RewriteProxy.Cli;
+using RewriteProxy.Store;
 using RewriteProxy.Tests.Fixtures;
 
 namespace RewriteProxy.Tests.Cli;
@@ -33,9 +34,9 @@ public class StatsCommandTests
     public async Task Stats_of_a_store_file_give_entries_hits_hit_ratio_tokens_and_drops_per_lane()
     {
         var path = Path.Combine(CliTestKit.NewFolder(), "cache.db");
-        await using (var store = CliTestKit.OpenStore(path)) await FillAsync(store);
+        await using (var store = await CliTestKit.OpenStoreAsync(path)) await FillAsync(store);
 
-        var body = await StatsCommand.ReadAsync(new StatsTarget(path, null, null), CancellationToken.None);
+        var body = await StatsCommand.ReadAsync(CliTestKit.Target(path), CancellationToken.None);
 
         var draft = body["lanes"]!.AsArray().Single(l => (string)l!["lane"]! == "draft")!;
         Assert.Equal(3, (long)draft["entries"]!);
@@ -48,7 +49,7 @@ public class StatsCommandTests
         Assert.True((long)body["storeBytes"]! >= new FileInfo(path).Length);
 
         var (console, text) = CliTestKit.Console80();
-        Assert.Equal(ExitCodes.Ok, await StatsCommand.RunAsync(new StatsTarget(path, null, null), json: false, console, TextWriter.Null, CancellationToken.None));
+        Assert.Equal(ExitCodes.Ok, await StatsCommand.RunAsync(CliTestKit.Target(path), json: false, console, TextWriter.Null, CancellationToken.None));
         var output = text.ToString();
         Assert.Matches(@"draft\s+3\s+8\s+8\s+50\.0%\s+800", output);
         Assert.Matches(@"siblings\s+refused\s+number\s+6", output);
@@ -59,7 +60,7 @@ public class StatsCommandTests
     public async Task Stats_show_how_questions_were_found_and_the_learned_templates_in_80_columns()
     {
         var path = Path.Combine(CliTestKit.NewFolder(), "cache.db");
-        await using (var store = CliTestKit.OpenStore(path))
+        await using (var store = await CliTestKit.OpenStoreAsync(path))
         {
             store.Count("siblings", Tally.Question("template"), 40);
             store.Count("siblings", Tally.Question("unlocated"), 2);
@@ -69,13 +70,13 @@ public class StatsCommandTests
             await store.FlushAsync(CancellationToken.None);
         }
 
-        var body = await StatsCommand.ReadAsync(new StatsTarget(path, null, null), CancellationToken.None);
+        var body = await StatsCommand.ReadAsync(CliTestKit.Target(path), CancellationToken.None);
         var template = Assert.Single(body["templates"]!.AsArray())!;
         Assert.EndsWith("Original question: {question}", (string)template["template"]!);
         Assert.Equal(3, (int)template["learnedFrom"]!);
 
         var (console, text) = CliTestKit.Console80();
-        Assert.Equal(ExitCodes.Ok, await StatsCommand.RunAsync(new StatsTarget(path, null, null), json: false, console, TextWriter.Null, CancellationToken.None));
+        Assert.Equal(ExitCodes.Ok, await StatsCommand.RunAsync(CliTestKit.Target(path), json: false, console, TextWriter.Null, CancellationToken.None));
         var output = text.ToString();
         Assert.Matches(@"siblings\s+template\s+40", output);
         Assert.Matches(@"siblings\s+unlocated\s+2", output);
@@ -91,7 +92,7 @@ public class StatsCommandTests
         await FillAsync(store);
 
         var remote = await StatsCommand.ReadAsync(new StatsTarget(null, proxy.Root, AdminToken), CancellationToken.None);
-        var local = await StatsCommand.ReadAsync(new StatsTarget(proxy.Options.Store.Path, null, null), CancellationToken.None);
+        var local = await StatsCommand.ReadAsync(CliTestKit.Target(proxy.Options.Store.Path), CancellationToken.None);
 
         Assert.True(JsonNode.DeepEquals(local["lanes"], remote["lanes"]), $"{local["lanes"]}\n---\n{remote["lanes"]}");
     }

@@ -5,6 +5,7 @@ using System.Xml.Linq;
 using RewriteProxy.Cache;
 using RewriteProxy.Cli;
 using RewriteProxy.Cli.Reports;
+using RewriteProxy.Store;
 using RewriteProxy.Tests.Fixtures;
 using SkiaSharp;
 
@@ -146,7 +147,7 @@ public class TuneCommandTests
         var dir = CliTestKit.NewFolder();
         var path = Path.Combine(dir, "cache.db");
         var now = DateTimeOffset.UtcNow;
-        await using (var store = CliTestKit.OpenStore(path))
+        await using (var store = await CliTestKit.OpenStoreAsync(path))
         {
             void Rewrite(string lane, double drift, string verdict, DateTimeOffset at) => store.AppendEvent(new EventRow(at, lane, "p1", "rewrite",
                 "How do I report a burst water main?", "Who do I call about a burst pipe?", drift, verdict, verdict == "dropped" ? "drift" : null));

@@ -56,9 +56,9 @@ public sealed class TestProxy : IAsyncDisposable
         });
         await app.StartAsync();
         // The index is rebuilt in the background; tests that restart a proxy expect semantic hits at once.
-        var cache = app.Services.GetRequiredService<RewriteProxy.Cache.SemanticCache>();
+        var follower = app.Services.GetRequiredService<RewriteProxy.Cache.IndexFollower>();
         var waited = System.Diagnostics.Stopwatch.StartNew();
-        while (!cache.IndexReady && waited.Elapsed < TimeSpan.FromSeconds(20)) await Task.Delay(10);
+        while (!follower.Ready && waited.Elapsed < TimeSpan.FromSeconds(20)) await Task.Delay(10);
         return new TestProxy(app, options);
     }
 

@@ -36,6 +36,8 @@ public sealed class ConfigurationTests
     [InlineData("--Lanes:draft:Kind=summary", "Lanes:draft:Kind = 'summary' is not allowed; allowed: draft, siblings")]
     [InlineData("--Store:MaxEntries=-5", "Store:MaxEntries = -5 is not allowed; allowed: 1 or more")]
     [InlineData("--Upstream:Timeout=soon", "Upstream:Timeout = 'soon' is not a duration")]
+    [InlineData("--Store:Provider=mysql", "Store:Provider = 'mysql' is not allowed; allowed: sqlite, postgres")]
+    [InlineData("--Store:Provider=postgres", "Store:ConnectionString is missing; Store:Provider = postgres needs")]
     public void A_bad_value_stops_the_process_with_one_clear_line(string argument, string expected)
     {
         var (exit, _, stderr) = RunProxy(argument, "--urls", "http://127.0.0.1:0");
@@ -45,6 +47,45 @@ public sealed class ConfigurationTests
         Assert.Single(lines);
         Assert.Contains(expected, lines[0]);
         Assert.DoesNotContain("   at ", stderr);
+    }
+
+    [Fact]
+    public void The_store_connection_string_is_read_from_the_environment_and_never_printed()
+    {
+        const string secret = "Host=db.invalid;Username=rp;Password=s3cret-of-the-store";
+        var (exit, stdout, stderr) = RunProxyWith(new()
+        {
+            ["REWRITEPROXY_Store__Provider"] = "postgres",
+            ["REWRITEPROXY_Store__ConnectionString"] = secret,
+        }, "--urls", "http://127.0.0.1:0");
+
+        Assert.NotEqual(0, exit); // the store cannot be reached (or is not in this build): a start-up error
+        Assert.Contains("store", stderr);
+        Assert.DoesNotContain("s3cret-of-the-store", stdout + stderr);
+        var options = OptionsReader.Read(new ConfigurationBuilder().AddInMemoryCollection(new Dictionary<string, string?>
+        {
+            ["Upstream:BaseUrl"] = "http://127.0.0.1:9/v1",
+            ["Store:Provider"] = "postgres",
+            ["Store:ConnectionString"] = secret,
+        }).Build()).Options!;
+        Assert.Equal(secret, options.Store.ConnectionString);
+        Assert.DoesNotContain("s3cret-of-the-store", options.ToString());
+    }
+
+    [Theory]
+    [InlineData(null, null, "data/rewriteproxy.db.index")]
+    [InlineData(null, "/srv/cache.db", "/srv/cache.db.index")]
+    [InlineData("", null, "")]
+    [InlineData("/snapshots/index", null, "/snapshots/index")]
+    public void The_index_snapshot_sits_beside_the_store_unless_set_and_empty_turns_it_off(string? snapshot, string? path, string expected)
+    {
+        var settings = new Dictionary<string, string?> { ["Upstream:BaseUrl"] = "http://127.0.0.1:9/v1" };
+        if (snapshot is not null) settings["Store:IndexSnapshotPath"] = snapshot;
+        if (path is not null) settings["Store:Path"] = path;
+
+        var options = OptionsReader.Read(new ConfigurationBuilder().AddInMemoryCollection(settings).Build()).Options!;
+
+        Assert.Equal(expected, options.Store.IndexSnapshotPath);
     }
 
     [Fact]

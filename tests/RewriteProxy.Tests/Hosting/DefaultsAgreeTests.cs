@@ -17,7 +17,10 @@ public sealed class DefaultsAgreeTests
     static readonly Dictionary<string, Func<RewriteProxyOptions, LaneOptions?, object?>> Keys = new()
     {
         ["Upstream:Timeout"] = (o, _) => o.Upstream.Timeout,
+        ["Store:Provider"] = (o, _) => o.Store.Provider,
         ["Store:Path"] = (o, _) => o.Store.Path,
+        ["Store:ConnectionString"] = (o, _) => o.Store.ConnectionString,
+        ["Store:IndexSnapshotPath"] = (o, _) => o.Store.IndexSnapshotPath,
         ["Store:MaxEntries"] = (o, _) => o.Store.MaxEntries,
         ["Store:Ttl"] = (o, _) => o.Store.Ttl,
         ["Embedding:ModelPath"] = (o, _) => o.Embedding.ModelPath,

@@ -4,6 +4,7 @@ using System.Text;
 using System.Text.Json.Nodes;
 using Microsoft.Extensions.DependencyInjection;
 using RewriteProxy.Cache;
+using RewriteProxy.Store;
 using RewriteProxy.Tests.Fixtures;
 
 namespace RewriteProxy.Tests.Lanes;
@@ -228,7 +229,7 @@ public sealed class BadInputTests : UpstreamAndProxy
     {
         var store = Proxy.Services.GetRequiredService<IRewriteStore>();
         await store.FlushAsync(CancellationToken.None);
-        var entries = ((SqliteRewriteStore)store).List(lane, null, null, 10);
+        var entries = await store.ListAsync(new EntryQuery(lane, Limit: 10), CancellationToken.None);
         var entry = Assert.Single(entries, e => e.Question == question);
         Assert.Equal(content, entry.Content);
         var hit = await Proxy.AskAsync(lane, question);

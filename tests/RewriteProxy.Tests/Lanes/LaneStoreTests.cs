@@ -1,5 +1,7 @@
 using Microsoft.Extensions.DependencyInjection;
 using RewriteProxy.Cache;
+using RewriteProxy.Store;
+using RewriteProxy.Store.Sqlite;
 using RewriteProxy.Tests.Fixtures;
 
 namespace RewriteProxy.Tests.Lanes;
@@ -20,6 +22,14 @@ public sealed class LaneStoreTests : UpstreamAndProxy
 
     static async Task FlushAsync(TestProxy proxy) =>
         await proxy.Services.GetRequiredService<IRewriteStore>().FlushAsync(CancellationToken.None);
+
+    /// <summary>Waits (at most 10 s) until the store was made anew: a new store has a new id.</summary>
+    static async Task MadeAnewAsync(IRewriteStore store, string before)
+    {
+        var waited = System.Diagnostics.Stopwatch.StartNew();
+        while (store.StoreId == before && waited.Elapsed < TimeSpan.FromSeconds(10)) await Task.Delay(20);
+        Assert.NotEqual(before, store.StoreId);
+    }
 
     [Fact]
     public async Task Entries_survive_a_restart_and_the_index_is_rebuilt()
@@ -62,7 +72,7 @@ public sealed class LaneStoreTests : UpstreamAndProxy
         foreach (var question in q[3..]) await proxy.AskAsync("draft", question);
         await FlushAsync(proxy);
 
-        var stats = proxy.Services.GetRequiredService<IRewriteStore>().Stats();
+        var stats = await proxy.Services.GetRequiredService<IRewriteStore>().StatsAsync(CancellationToken.None);
         Assert.Equal(3, stats.Lanes.Single(l => l.Lane == "draft").Entries);
         Assert.Equal("hit-exact", (await proxy.AskAsync("draft", q[0])).Cache);
         Assert.Equal("hit-exact", (await proxy.AskAsync("draft", q[4])).Cache);
@@ -76,15 +86,15 @@ public sealed class LaneStoreTests : UpstreamAndProxy
         await using var proxy = await StartAsync(path);
         await proxy.AskAsync("draft", "How many guests may a member bring?");
         await FlushAsync(proxy);
-        var recreated = new TaskCompletionSource(TaskCreationOptions.RunContinuationsAsynchronously);
-        proxy.Services.GetRequiredService<IRewriteStore>().Reset += () => recreated.TrySetResult();
+        var store = proxy.Services.GetRequiredService<IRewriteStore>();
+        var before = store.StoreId;
         foreach (var suffix in new[] { "", "-wal", "-shm" }) File.Delete(path + suffix);
 
         var during = await proxy.AskAsync("draft", "How many guests may a member bring?");
         Assert.Equal(200, during.Status);
         Assert.Contains(during.Cache, new[] { "bypass", "miss" });
 
-        await recreated.Task.WaitAsync(TimeSpan.FromSeconds(10));
+        await MadeAnewAsync(store, before);
         var stored = await proxy.AskAsync("draft", "Is there a locker room at the east gate?");
         var again = await proxy.AskAsync("draft", "Is there a locker room at the east gate?");
         Assert.Equal("miss", stored.Cache);
@@ -98,9 +108,9 @@ public sealed class LaneStoreTests : UpstreamAndProxy
         await using var proxy = await StartAsync(path);
         await proxy.AskAsync("draft", "Can I pay the library fine online?");
         await FlushAsync(proxy);
-        var recreated = new TaskCompletionSource(TaskCreationOptions.RunContinuationsAsynchronously);
-        proxy.Services.GetRequiredService<IRewriteStore>().Reset += () => recreated.TrySetResult();
-        ((SqliteRewriteStore)proxy.Services.GetRequiredService<IRewriteStore>()).ReleaseConnections();
+        var store = proxy.Services.GetRequiredService<IRewriteStore>();
+        var before = store.StoreId;
+        ((SqliteRewriteStore)store).ReleaseConnections();
         // Overwrite the SQLite header ("SQLite format 3\0", sqlite.org/fileformat.html §1.3) and the first pages.
         await using (var file = new FileStream(path, FileMode.Open, FileAccess.Write, FileShare.ReadWrite))
             file.Write(new byte[8192].Select((_, i) => (byte)(i * 7)).ToArray());
@@ -111,7 +121,7 @@ public sealed class LaneStoreTests : UpstreamAndProxy
         Assert.Equal("answer", during.Content.Split(':')[0].Split(' ')[^1]);
 
         var dir = Path.GetDirectoryName(path)!;
-        await recreated.Task.WaitAsync(TimeSpan.FromSeconds(10));
+        await MadeAnewAsync(store, before);
         Assert.NotEmpty(Directory.GetFiles(dir, "*.corrupt-*"));
         await proxy.AskAsync("draft", "Are e-books free for members?");
         Assert.Equal("hit-exact", (await proxy.AskAsync("draft", "Are e-books free for members?")).Cache);

@@ -1,4 +1,5 @@
 using RewriteProxy.Guard;
+using RewriteProxy.Store;
 using RewriteProxy.Telemetry;
 using System.Globalization;
 using System.Net;

@@ -1,6 +1,6 @@
 using System.Text.Json;
 
-namespace RewriteProxy.Cache;
+namespace RewriteProxy.Store.Sqlite;
 
 /// <summary>An <c>entries</c> row as SQLite holds it: scores as JSON text, times as Unix milliseconds.</summary>
 internal sealed record SqliteEntryRow

@@ -1,4 +1,4 @@
-namespace RewriteProxy.Cache;
+namespace RewriteProxy.Store;
 
 /// <summary>A rewrite accepted on a miss, about to be stored.</summary>
 public sealed record NewEntry(
@@ -103,7 +103,11 @@ public sealed record LaneStats(
     public double? HitRatio => Hits + Miss == 0 ? null : (double)Hits / (Hits + Miss);
 }
 
-public sealed record StoreStats(IReadOnlyList<LaneStats> Lanes, long FileBytes, IReadOnlyList<TemplateRow>? LearnedTemplates = null)
+/// <summary>Every lane's figures, the store's size and its learned templates.</summary>
+/// <param name="Lanes">Each lane's figures, by lane name.</param>
+/// <param name="Bytes">Size on disk: the SQLite file with its WAL and shared-memory files, or the database tables' size.</param>
+/// <param name="LearnedTemplates">The learned prompt templates (see <see cref="Templates"/>).</param>
+public sealed record StoreStats(IReadOnlyList<LaneStats> Lanes, long Bytes, IReadOnlyList<TemplateRow>? LearnedTemplates = null)
 {
     public IReadOnlyList<TemplateRow> Templates => LearnedTemplates ?? [];
 }

@@ -1,8 +1,11 @@
-namespace RewriteProxy.Cache;
+namespace RewriteProxy.Store.Sqlite;
 
 /// <summary>Numbered schema migrations; <c>PRAGMA user_version</c> holds the last one applied. Append, never edit.</summary>
-public static class SqliteMigrations
+internal static class SqliteMigrations
 {
+    /// <summary>The schema version from which the <c>meta</c> table (the store's id) is there.</summary>
+    public const int MetaStep = 5;
+
     public static readonly string[] Steps =
     [
         // 1: entries
@@ -70,6 +73,26 @@ public static class SqliteMigrations
             PRIMARY KEY (learn_key, prefix, suffix)
         );
         CREATE INDEX templates_learned_at ON templates (learned_at);
+        """,
+        // 5: the store's identity, made once when the store is created: a store made anew has another, so an index
+        // snapshot or a follower that knew the old one rebuilds instead of trusting ids that now mean other entries
+        """
+        CREATE TABLE meta (
+            key   TEXT NOT NULL PRIMARY KEY,
+            value TEXT NOT NULL
+        ) WITHOUT ROWID;
+        INSERT INTO meta (key, value) VALUES ('store_id', lower(hex(randomblob(16))));
+        """,
+        // 6: the change feed: one row per stored, replaced or deleted entry, written in the transaction that changes
+        // the entry; AUTOINCREMENT so a sequence is never reused, even after the newest changes are pruned
+        """
+        CREATE TABLE changes (
+            sequence INTEGER PRIMARY KEY AUTOINCREMENT,
+            entry_id INTEGER NOT NULL,
+            kind     TEXT    NOT NULL CHECK (kind IN ('put', 'delete')),
+            at       INTEGER NOT NULL
+        );
+        CREATE INDEX changes_at ON changes (at);
         """,
     ];
 }

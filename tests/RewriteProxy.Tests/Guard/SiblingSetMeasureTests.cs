@@ -30,14 +30,15 @@ public sealed class SiblingSetMeasureTests(ITestOutputHelper output)
             + $"sets with an off-topic line kept while an on-topic one was dropped {Inversions}/{Sets}";
     }
 
-    static Tally Run(IEnumerable<(string Question, string Answer, string[] On, string[] Off)> sets, double relevance, double floor, List<string>? trace = null)
+    static Tally Run(IEnumerable<(string Question, string Answer, string[] On, string[] Off)> sets, double relevance, double floor, List<string>? trace = null,
+        double consensus = 0)
     {
         var embedder = SharedEmbedder.Instance;
         int onKept = 0, onTotal = 0, offDropped = 0, offTotal = 0, inversions = 0, count = 0;
         foreach (var (question, answer, on, off) in sets)
         {
             var candidates = SiblingParser.Parse(answer, Lane.Candidates);
-            var judgement = SiblingGuard.Judge(embedder.Embed(question), candidates, embedder.Embed(candidates), answer, Lane, relevance, floor);
+            var judgement = SiblingGuard.Judge(embedder.Embed(question), candidates, embedder.Embed(candidates), answer, Lane, relevance, floor, consensus);
             var kept = judgement.Kept.Select(k => k.Text).ToHashSet(StringComparer.Ordinal);
             var on_ = on.Count(kept.Contains);
             var off_ = off.Count(t => !kept.Contains(t));
@@ -82,7 +83,7 @@ public sealed class SiblingSetMeasureTests(ITestOutputHelper output)
             var after = Run(sets, SiblingGuard.Relevance, SiblingGuard.RelevanceFloor);
             results[name] = (before, after);
             output.WriteLine($"| {name} | MMR over every candidate (before) | {before} |");
-            output.WriteLine($"| {name} | MMR within relevance floor {SiblingGuard.RelevanceFloor} | {after} |");
+            output.WriteLine($"| {name} | MMR within relevance floor {SiblingGuard.RelevanceFloor} (shipped) | {after} |");
         }
         output.WriteLine("");
         output.WriteLine("Relevance floor sweep, dev part only:");
@@ -98,6 +99,12 @@ public sealed class SiblingSetMeasureTests(ITestOutputHelper output)
         foreach (var floor in new[] { 0.30, 0.35, 0.40, 0.45, 0.50, 0.55, 0.60, 0.65 })
             output.WriteLine($"| {floor:F2} | {Run(dev, SiblingGuard.Relevance, floor)} |");
         output.WriteLine($"| (λ = 1, relevance alone) | {Run(dev, 1.0, Lane.MaxDrift)} |");
+        output.WriteLine("");
+        output.WriteLine($"Consensus ranking (mean cosine to the other candidates weighed beside the cosine to the question; not shipped), floor {SiblingGuard.RelevanceFloor}, dev part only:");
+        output.WriteLine("| consensus | result |");
+        output.WriteLine("| --- | --- |");
+        foreach (var c in new[] { 0.0, 0.25, 0.5, 0.75, 1.0 })
+            output.WriteLine($"| {c:F2} | {Run(dev, SiblingGuard.Relevance, SiblingGuard.RelevanceFloor, consensus: c)} |");
 
         // The floor takes diversity out of the choice between near and far lines: never worse than MMR over every candidate.
         // It cannot remove the inversions that drift itself makes (an on-topic line beyond MaxDrift, an off-topic one within).

@@ -103,7 +103,8 @@ public static class SiblingGuard
         var near = new double[candidates.Count];
         foreach (var i in pool)
         {
-            var agreement = pool.Count > 1 ? pool.Where(j => j != i).Average(j => Cosine(vectors[i], vectors[j])) : 0;
+            // Not computed when unused (the shipped 0): n² cosines on every judged completion.
+            var agreement = consensus == 0 || pool.Count < 2 ? 0 : pool.Where(j => j != i).Average(j => Cosine(vectors[i], vectors[j]));
             near[i] = (1 - consensus) * (1 - drift[i]) + consensus * agreement;
         }
 

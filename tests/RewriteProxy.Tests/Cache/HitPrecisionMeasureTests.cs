@@ -91,6 +91,8 @@ public sealed class HitPrecisionMeasureTests(ITestOutputHelper output)
     static readonly Dictionary<string, (int MaxNearMisses, int MinParaphrases, int MaxOthers)> Measured = new()
     {
         ["dev"] = (0, 202, 2),
+        // Read once at 77ea6862 (2026-12-02 07:56 UTC), held out: the decision did not change after it.
+        ["test"] = (3, 90, 1),
     };
 
     [Fact]

@@ -56,7 +56,7 @@ public static class ProxyMetrics
         new HistogramConfiguration { LabelNames = ["lane"], Buckets = SimilarityBuckets });
 
     public static readonly Counter GuardRejections = Prometheus.Metrics.CreateCounter(
-        "rewriteproxy_guard_rejections_total", $"Semantic candidates refused by the hit decision (anchor guard, then what changed), by reason ({Listed<AnchorReason>()}).",
+        "rewriteproxy_guard_rejections_total", $"Semantic candidates refused by the hit decision (hard rules, then the learned combiner), by reason ({Listed<AnchorReason>()}).",
         new CounterConfiguration { LabelNames = ["lane", "reason"] });
 
     public static readonly Histogram Drift = Prometheus.Metrics.CreateHistogram(

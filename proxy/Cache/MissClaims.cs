@@ -3,7 +3,7 @@ using RewriteProxy.Store;
 
 namespace RewriteProxy.Cache;
 
-/// <summary>How a wait on another process's claim ended (the <c>outcome</c> label of <c>rewriteproxy_claim_waits_total</c>).</summary>
+/// <summary>How a wait on another process's claim ended (the <c>result</c> label of <c>rewriteproxy_claim_waits_total</c>).</summary>
 public enum ClaimOutcome
 {
     /// <summary>The holder stored its entry, and it was served.</summary>

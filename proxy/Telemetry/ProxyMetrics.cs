@@ -90,7 +90,7 @@ public static class ProxyMetrics
     public static readonly Counter ClaimWaits = Prometheus.Metrics.CreateCounter(
         "rewriteproxy_claim_waits_total",
         $"Lane misses that waited for another replica's claim on the same question, by how the wait ended ({Listed<ClaimOutcome>()}).",
-        new CounterConfiguration { LabelNames = ["lane", "outcome"] });
+        new CounterConfiguration { LabelNames = ["lane", "result"] });
 
     public static readonly Gauge LaneMaxDrift = Prometheus.Metrics.CreateGauge(
         "rewriteproxy_lane_max_drift", "The configured MaxDrift of each lane, for alerts that compare drift to it.",

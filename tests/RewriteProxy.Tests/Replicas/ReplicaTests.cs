@@ -91,7 +91,7 @@ public sealed class ReplicaTests(PostgresCluster cluster, ITestOutputHelper outp
         }
         var calls = questions.Sum(UpstreamCallsFor);
         var scrapes = await Task.WhenAll(set.All.Select(r => MetricsExposition.ScrapeAsync(r.Client)));
-        var served = scrapes.Sum(s => s.Sum("rewriteproxy_claim_waits_total", ("outcome", "served")));
+        var served = scrapes.Sum(s => s.Sum("rewriteproxy_claim_waits_total", ("result", "served")));
         output.WriteLine($"{questions.Count * set.All.Count} calls, {calls} upstream calls, {served} served from another replica's call, " +
                          $"{watch.ElapsedMilliseconds} ms");
         Assert.Equal(questions.Count, calls);
@@ -143,7 +143,7 @@ public sealed class ReplicaTests(PostgresCluster cluster, ITestOutputHelper outp
         Assert.Equal(200, answer.Status);
         output.WriteLine($"the waiter on the killed replica's claim answered after {watch.ElapsedMilliseconds} ms (ClaimWait {claimWait.TotalSeconds} s)");
         Assert.True(watch.Elapsed < claimWait + _upstream.Delay + TimeSpan.FromSeconds(5), $"took {watch.Elapsed}");
-        var timedOut = (await MetricsExposition.ScrapeAsync(set[1].Client)).Sum("rewriteproxy_claim_waits_total", ("outcome", "timed_out"));
+        var timedOut = (await MetricsExposition.ScrapeAsync(set[1].Client)).Sum("rewriteproxy_claim_waits_total", ("result", "timed_out"));
         Assert.Equal(1, timedOut);
     }
 

@@ -20,4 +20,11 @@ public enum CacheResult
     Miss,
     /// <summary>Forwarded uncached: a call a cache cannot stand in for, <c>no-store</c>, or a fail-open.</summary>
     Bypass,
+    /// <summary>
+    /// A <c>Cache-Control: only-if-cached</c> call (a probe) served from the cache. Counted apart from the hits: a
+    /// probe's misses are never asked upstream, so counting its hits as hits would lift the hit ratio.
+    /// </summary>
+    ProbeHit,
+    /// <summary>A <c>Cache-Control: only-if-cached</c> call the cache could not answer: 504, the upstream not asked.</summary>
+    ProbeMiss,
 }

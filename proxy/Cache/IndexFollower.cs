@@ -37,6 +37,9 @@ public sealed class IndexFollower : IAsyncDisposable
     /// <summary>The index holds the store as of <see cref="Sequence"/> (rebuilt, or given to <see cref="StartAsync"/>).</summary>
     volatile bool _loaded;
     bool _failing;
+    /// <summary>Set from the moment a rebuild clears the index until it has loaded the store again.</summary>
+    volatile bool _rebuilding;
+    long _generation;
 
     public IndexFollower(IRewriteStore store, VectorIndex index, HotEntries hot, string modelId, ILogger log)
     {
@@ -53,6 +56,22 @@ public sealed class IndexFollower : IAsyncDisposable
 
     /// <summary>True once the index holds the store (the rebuild, or the given index, and its first catch-up).</summary>
     public bool Ready { get; private set; }
+
+    /// <summary>Rises when a rebuild starts: a snapshot saved across a change of it may mix two states of the index.</summary>
+    public long Generation => Interlocked.Read(ref _generation);
+
+    /// <summary>
+    /// Where the index stands, for a snapshot (Cache/Snapshots): the store it holds, the change it holds it as of, and the
+    /// <see cref="Generation"/> to compare once saved. Null before the index holds the store, and during a rebuild.
+    /// </summary>
+    public IndexPoint? Point()
+    {
+        // Generation first: a rebuild sets _rebuilding before it raises the generation, so either this sees the flag or
+        // the saver sees a new generation afterwards.
+        var generation = Generation;
+        if (_rebuilding || !_loaded || !Ready || _storeId is not { } storeId) return null;
+        return new IndexPoint(generation, storeId, Sequence);
+    }
 
     /// <summary>
     /// Rebuilds the index from the store, off the request path (a million entries take minutes, docs/measurements/index.md;
@@ -183,12 +202,16 @@ public sealed class IndexFollower : IAsyncDisposable
         var watch = Stopwatch.StartNew();
         var storeId = _store.StoreId;
         var load = await _store.ReadVectorsAsync(_modelId, cancel);
+        // Left set if what follows fails: an index half cleared must never be saved.
+        _rebuilding = true;
+        Interlocked.Increment(ref _generation);
         _index.Clear();
         _hot.Clear();
         _index.Load(load.Rows.Where(r => r.Vector.Length == _index.Dimensions).Select(r => (r.ScopeKey, r.Id, r.Vector)));
         Interlocked.Exchange(ref _sequence, load.Sequence);
         _storeId = storeId;
         _loaded = true;
+        _rebuilding = false;
         _log.LogInformation("cache: index rebuilt with {Count} vectors of model {ModelId} in {Ms} ms (change {Sequence})", _index.Count,
             _modelId, watch.ElapsedMilliseconds, load.Sequence);
     }
@@ -211,3 +234,6 @@ public sealed class IndexFollower : IAsyncDisposable
         _stop.Dispose();
     }
 }
+
+/// <summary>The state an index holds: the store (its id), the change sequence, and the follower's rebuild generation.</summary>
+public sealed record IndexPoint(long Generation, string StoreId, long Sequence);

@@ -45,7 +45,7 @@ public sealed record HnswSettings
 /// whole node table on every insert, so we grow geometrically ahead of it through the wrapper's own private
 /// reserve, and only while no other call is inside the index (a reserve reallocates what searches read).
 /// </remarks>
-internal sealed class ScopeGraph : IDisposable
+internal sealed partial class ScopeGraph : IDisposable
 {
     private static readonly Action<USearchIndex, ulong> IncreaseCapacity = BindIncreaseCapacity();
 

@@ -12,7 +12,7 @@ namespace RewriteProxy.Cache;
 /// All writers are serialised by the owning <see cref="VectorIndex"/>, so a writer may read the rows without the
 /// lock and may talk to the graph under the read lock (the graph handles its own concurrent insert/search).
 /// </remarks>
-internal sealed class ScopeIndex : IDisposable
+internal sealed partial class ScopeIndex : IDisposable
 {
     /// <summary>Rows per storage chunk: 4096 × 384 floats = 6 MiB, small enough to stay cheap to allocate,
     /// large enough that a scan is a handful of long contiguous runs.</summary>

@@ -21,6 +21,7 @@ public sealed class SemanticCache : IRewriteCache
     readonly HitDecision _decision;
     readonly LaneTally _tally;
     readonly StoreOptions _options;
+    readonly MissClaims _claims;
 
     public SemanticCache(IRewriteStore store, VectorIndex index, HotEntries hot, IEmbedder embedder, AnchorGuard guard, LaneTally tally,
         StoreOptions options)
@@ -34,6 +35,7 @@ public sealed class SemanticCache : IRewriteCache
         _decision = new HitDecision(guard);
         _tally = tally;
         _options = options;
+        _claims = new MissClaims(store, FindExactAsync);
     }
 
     DateTimeOffset MinCreated => DateTimeOffset.UtcNow - _options.Ttl;
@@ -138,15 +140,22 @@ public sealed class SemanticCache : IRewriteCache
         _hot.Invalidate(id);
         try
         {
-            // Without a vector (an unlocated call's entry) the entry is found only exactly, never by the index.
-            if (questionVector is null) _index.Remove(id);
-            else _index.Add(key.ScopeKey, id, questionVector);
+            // Without a vector (an unlocated call's entry) the entry is found only exactly, never by the index. While an
+            // index snapshot holds writers off, the answer does not wait: the follower applies the change after the hold.
+            if (questionVector is null) _index.RemoveUnlessHeld(id);
+            else _index.AddUnlessHeld(key.ScopeKey, id, questionVector);
         }
         catch (Exception e) when (e is not OutOfMemoryException)
         {
             throw new CacheFailure(FailOpenReason.Index, e.Message, e);
         }
     }
+
+    public Task<bool> ClaimMissAsync(CacheKey key, TimeSpan hold, CancellationToken cancel) => _claims.ClaimAsync(key, hold, cancel);
+
+    public Task ReleaseMissAsync(CacheKey key) => _claims.ReleaseAsync(key);
+
+    public Task<ClaimWait> AwaitClaimAsync(CacheKey key, TimeSpan wait, CancellationToken cancel) => _claims.AwaitAsync(key, wait, cancel);
 
     public void RecordHit(StoredEntry entry) => _store.RecordHit(entry.Id, DateTimeOffset.UtcNow);
 

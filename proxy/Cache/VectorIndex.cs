@@ -14,7 +14,7 @@ namespace RewriteProxy.Cache;
 /// scope's write lock only for a row copy, so a reader waits at most for one row copy plus one in-flight scan.
 /// A scope's conversion to a graph runs on the writer's thread: other writers wait for it, readers do not.
 /// </remarks>
-public sealed class VectorIndex : IDisposable
+public sealed partial class VectorIndex : IDisposable
 {
     /// <summary>Entries per scope at which a graph is built. Chosen from the exact-vs-HNSW lookup and build
     /// measurements in docs/measurements/index.md: below it brute force is fast enough and needs no build.</summary>

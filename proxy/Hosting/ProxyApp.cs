@@ -8,6 +8,7 @@ using Microsoft.Extensions.DependencyInjection;
 using Microsoft.Extensions.Logging;
 using Prometheus;
 using RewriteProxy.Cache;
+using RewriteProxy.Cache.Snapshots;
 using RewriteProxy.Embedding;
 using RewriteProxy.Forwarding;
 using RewriteProxy.Lanes;
@@ -71,6 +72,11 @@ public static class ProxyApp
         services.AddSingleton(sp => new IndexFollower(sp.GetRequiredService<IRewriteStore>(), sp.GetRequiredService<VectorIndex>(),
             sp.GetRequiredService<HotEntries>(), sp.GetRequiredService<IEmbedder>().ModelId,
             sp.GetRequiredService<ILoggerFactory>().CreateLogger("cache")));
+        services.AddSingleton(sp => new IndexSnapshots(sp.GetRequiredService<IRewriteStore>(), sp.GetRequiredService<VectorIndex>(),
+            sp.GetRequiredService<IndexFollower>(), sp.GetRequiredService<IEmbedder>().ModelId, options.Store,
+            sp.GetRequiredService<ILoggerFactory>().CreateLogger("cache")));
+        // A hosted service for its stop: a graceful shutdown saves the index.
+        services.AddHostedService(sp => sp.GetRequiredService<IndexSnapshots>());
         services.AddSingleton(sp => new SemanticCache(sp.GetRequiredService<IRewriteStore>(), sp.GetRequiredService<VectorIndex>(),
             sp.GetRequiredService<HotEntries>(), sp.GetRequiredService<IEmbedder>(), sp.GetRequiredService<AnchorGuard>(),
             sp.GetRequiredService<LaneTally>(), options.Store));
@@ -97,8 +103,9 @@ public static class ProxyApp
             // Before listening, so a store that cannot be opened is one start-up error; start-up may wait on it.
             store.OpenAsync(StoreAccess.ReadWrite, CancellationToken.None).GetAwaiter().GetResult();
             app.Services.GetRequiredService<QuestionFinder>().LoadTemplatesAsync(CancellationToken.None).GetAwaiter().GetResult();
-            var follower = app.Services.GetRequiredService<IndexFollower>();
-            app.Lifetime.ApplicationStarted.Register(() => _ = follower.StartWithRebuildAsync());
+            // The index is loaded from its snapshot, or rebuilt, in the background: exact hits work meanwhile.
+            var snapshots = app.Services.GetRequiredService<IndexSnapshots>();
+            app.Lifetime.ApplicationStarted.Register(() => _ = snapshots.StartFollowingAsync());
         }
         catch (EmbedderLoadException e)
         {

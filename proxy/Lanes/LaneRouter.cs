@@ -11,7 +11,8 @@ namespace RewriteProxy.Lanes;
 /// <summary>
 /// A lane call from its endpoint to its answer. Reads the request, finds the question and its scope, and sends the call
 /// where it belongs: a hit is answered from the cache, a miss goes to the <see cref="RewriteFlow"/>, and a call a cache
-/// cannot stand in for, a <c>no-store</c> lookup or any failure of the cache side goes to the upstream untouched.
+/// cannot stand in for, a <c>no-store</c> lookup or any failure of the cache side goes to the upstream untouched. A call
+/// with <c>only-if-cached</c> never goes upstream: it is a hit or a 504 (<see cref="CacheProbe"/>).
 /// </summary>
 public sealed class LaneRouter(RewriteProxyOptions options, IRewriteCache cache, RewriteFlow rewrites, Passthrough passthrough,
     FailOpenLog failOpen, LaneTally tally, QuestionFinder finder)
@@ -43,7 +44,8 @@ public sealed class LaneRouter(RewriteProxyOptions options, IRewriteCache cache,
         if (extraction.Site is not { } site)
         {
             context.Response.Headers[RewriteHeaders.Bypass] = LabelValue.Of(extraction.BypassReason!.Value);
-            await BypassAsync(context, lane, endpoint, body);
+            if (directives.OnlyIfCached) await CacheProbe.WriteUnansweredAsync(context, tally, lane.Name, format, CacheProbe.Unanswered.NotCacheable);
+            else await BypassAsync(context, lane, endpoint, body);
             return;
         }
 
@@ -57,6 +59,11 @@ public sealed class LaneRouter(RewriteProxyOptions options, IRewriteCache cache,
 
         float[]? questionVector = null;
         var lookUp = !directives.NoCache && !directives.NoStore;
+        if (directives.OnlyIfCached && !lookUp)
+        {
+            await CacheProbe.WriteUnansweredAsync(context, tally, lane.Name, format, CacheProbe.Unanswered.LookupForbidden);
+            return;
+        }
         if (lookUp)
         {
             LookupResult found;
@@ -73,16 +80,23 @@ public sealed class LaneRouter(RewriteProxyOptions options, IRewriteCache cache,
             catch (CacheFailure f)
             {
                 failOpen.Record(f.Reason, f.Message);
-                await BypassAsync(context, lane, endpoint, body);
+                if (directives.OnlyIfCached) await CacheProbe.WriteUnansweredAsync(context, tally, lane.Name, format, CacheProbe.Unanswered.CacheFailed);
+                else await BypassAsync(context, lane, endpoint, body);
                 return;
             }
             if (found.Entry is { } entry)
             {
-                CountHit(lane, found, entry);
+                if (directives.OnlyIfCached) CacheProbe.CountHit(tally, lane.Name);
+                else CountHit(lane, found, entry);
                 await AnswerWriter.WriteHitAsync(context, request, found);
                 return;
             }
             questionVector = found.QuestionVector;
+        }
+        if (directives.OnlyIfCached)
+        {
+            await CacheProbe.WriteUnansweredAsync(context, tally, lane.Name, format, CacheProbe.Unanswered.NoEntry);
+            return;
         }
 
         // While unsure, the drift guard measures against the best guess and drops nothing.
@@ -106,7 +120,8 @@ public sealed class LaneRouter(RewriteProxyOptions options, IRewriteCache cache,
             // The client left; a coalesced call goes on for the others and is still stored.
             return;
         }
-        if (joined) ProxyMetrics.Coalesced.WithLabels(lane.Name).Inc();
+        // Joined on this process, or served the entry of another replica's call on the same question.
+        if (joined || outcome is MissOutcome.Shared) ProxyMetrics.Coalesced.WithLabels(lane.Name).Inc();
         var result = directives.NoStore ? CacheResult.Bypass : CacheResult.Miss;
         tally.Lookup(lane.Name, result);
         context.Response.Headers[RewriteHeaders.Cache] = RewriteHeaders.CacheValue(result);

@@ -1,13 +1,20 @@
 // Runs lane calls through the official `openai` npm client (version pinned in package.json) and prints, as one JSON
-// line, what the app would see: the parsed text, the status and the proxy's X-Rewrite-* headers of each call.
-// Input (argv[2], JSON): { client: "openai" | "azure", baseURL | endpoint, apiKey, deployment?, apiVersion?, calls: [
+// line, what the app would see: the parsed text (or the SDK error), the status and the proxy's X-Rewrite-* headers of each call.
+// Input (argv[2], JSON): { client: "openai" | "azure", baseURL | endpoint, apiKey, deployment?, apiVersion?, maxRetries? (0), calls: [
 //   { api: "chat" | "responses", stream, model, question, system?, lane?, headers? } ] }
 import OpenAI, { AzureOpenAI } from 'openai';
 
 const spec = JSON.parse(process.argv[2]);
+// Requests the client sent for the current call, retries included.
+let attempts = 0;
+const countingFetch = (...args) => {
+  attempts++;
+  return fetch(...args);
+};
+const common = { apiKey: spec.apiKey, maxRetries: spec.maxRetries ?? 0, fetch: countingFetch };
 const client = spec.client === 'azure'
-  ? new AzureOpenAI({ endpoint: spec.endpoint, apiKey: spec.apiKey, apiVersion: spec.apiVersion, deployment: spec.deployment, maxRetries: 0 })
-  : new OpenAI({ baseURL: spec.baseURL, apiKey: spec.apiKey, maxRetries: 0 });
+  ? new AzureOpenAI({ ...common, endpoint: spec.endpoint, apiVersion: spec.apiVersion, deployment: spec.deployment })
+  : new OpenAI({ ...common, baseURL: spec.baseURL });
 
 function proxyHeaders(response) {
   const seen = {};
@@ -57,10 +64,16 @@ async function responses(call) {
 
 const results = [];
 for (const call of spec.calls) {
+  attempts = 0;
   try {
-    results.push(call.api === 'responses' ? await responses(call) : await chat(call));
+    results.push({ ...(call.api === 'responses' ? await responses(call) : await chat(call)), attempts });
   } catch (e) {
-    results.push({ error: String(e?.message ?? e), status: e?.status ?? null });
+    // What an app can read of a failed call: the SDK's error class and the fields it parsed from our error body.
+    results.push({
+      error: String(e?.message ?? e), status: e?.status ?? null, apiError: e instanceof OpenAI.APIError,
+      errorClass: e?.constructor?.name ?? null, code: e?.code ?? null, type: e?.type ?? null,
+      headers: e?.headers ? proxyHeaders({ headers: e.headers }) : null, attempts,
+    });
   }
 }
 process.stdout.write(JSON.stringify(results) + '\n');

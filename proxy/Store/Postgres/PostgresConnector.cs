@@ -37,6 +37,13 @@ public sealed class PostgresConnector : IAsyncDisposable
     /// </summary>
     public const int DefaultCancellationMilliseconds = 500;
 
+    /// <summary>
+    /// Statements Npgsql prepares on each connection once they were used twice, when the connection string sets no
+    /// <c>Max Auto Prepare</c> (Npgsql's default 0 prepares none). The request path runs a handful of statements over
+    /// and over; prepared, the server skips parsing and planning them on every lookup.
+    /// </summary>
+    public const int DefaultMaxAutoPrepare = 32;
+
     readonly NpgsqlDataSource _source;
 
     public PostgresConnector(string connectionString)
@@ -45,6 +52,7 @@ public sealed class PostgresConnector : IAsyncDisposable
         if (!Names(connectionString, "Timeout")) builder.Timeout = DefaultConnectSeconds;
         if (!Names(connectionString, "Command Timeout")) builder.CommandTimeout = DefaultCommandSeconds;
         if (!Names(connectionString, "Cancellation Timeout")) builder.CancellationTimeout = DefaultCancellationMilliseconds;
+        if (!Names(connectionString, "Max Auto Prepare")) builder.MaxAutoPrepare = DefaultMaxAutoPrepare;
         Location = Describe(builder);
         ConnectTimeout = TimeSpan.FromSeconds(builder.Timeout);
         CommandTimeout = TimeSpan.FromSeconds(builder.CommandTimeout);

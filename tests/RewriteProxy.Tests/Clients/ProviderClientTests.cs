@@ -120,4 +120,42 @@ public sealed class ProviderClientTests : UpstreamAndProxy
             Assert.Equal("1", r["headers"]!["x-rewrite-dropped"]!.GetValue<string>());
         }
     }
+
+    [Fact]
+    public async Task Openai_npm_client_probing_with_only_if_cached_gets_an_api_error_504_on_a_miss_and_the_entry_on_a_hit()
+    {
+        // The header goes through the client's per-request `headers` option, as an app would send it. The client keeps
+        // its default of 2 retries on a 5xx: the 504's `x-should-retry: false` is what keeps a probe to one request.
+        static JsonObject Probe(string question, bool stream)
+        {
+            var call = Call("chat", question, stream);
+            call["headers"] = new JsonObject { ["Cache-Control"] = "only-if-cached" };
+            return call;
+        }
+        const string uncached = "Can I freeze my gym membership for a month?";
+        var spec = new JsonObject
+        {
+            ["baseURL"] = new Uri(Proxy.Root, "lane/draft/v1").ToString(),
+            ["apiKey"] = "sk-tenant-a",
+            ["maxRetries"] = 2,
+            ["calls"] = new JsonArray(Probe(uncached, false), Probe(uncached, true), Call("chat", Question, false), Probe(Question, true)),
+        };
+
+        var results = await NodeClients.RunAsync("openai-calls.mjs", spec);
+
+        var client = $"openai {NodeClients.VersionOf("openai")}";
+        foreach (var miss in results.Take(2))
+        {
+            Assert.True(miss!["apiError"]?.GetValue<bool>(), $"{client}: expected an APIError, got {miss.ToJsonString()}");
+            Assert.Equal(504, miss["status"]!.GetValue<int>());
+            Assert.Equal("only_if_cached", miss["code"]!.GetValue<string>());
+            Assert.Equal("probe-miss", miss["headers"]!["x-rewrite-cache"]!.GetValue<string>());
+            Assert.Equal(1, miss["attempts"]!.GetValue<int>());
+        }
+        var hit = results[3]!;
+        Assert.True(hit["error"] is null, $"{client}: {hit["error"]}");
+        Assert.Equal("hit-exact", hit["headers"]!["x-rewrite-cache"]!.GetValue<string>());
+        Assert.Equal(Draft(Question), hit["text"]!.GetValue<string>());
+        Assert.Equal(1, CallsTo("/chat/completions"));
+    }
 }

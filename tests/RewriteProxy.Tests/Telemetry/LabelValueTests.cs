@@ -26,7 +26,7 @@ public sealed class LabelValueTests
     [Fact]
     public void Labels_are_the_members_names_in_snake_case()
     {
-        Assert.Equal(["hit_exact", "hit_semantic", "miss", "bypass"], LabelValue.All<CacheResult>());
+        Assert.Equal(["hit_exact", "hit_semantic", "miss", "bypass", "probe_hit", "probe_miss"], LabelValue.All<CacheResult>());
         Assert.Equal("no_question", LabelValue.Of(BypassReason.NoQuestion));
         Assert.Equal("n", LabelValue.Of(BypassReason.N));
         Assert.Equal(["drift", "echo", "duplicate", "surplus"], LabelValue.All<DropReason>());

@@ -10,6 +10,8 @@
 #   scripts/bench.sh rss            the same run, one round: the resident-memory figure
 #   scripts/bench.sh hits           exact and semantic hit latency of the proxy process against the bare model run
 #   scripts/bench.sh passthrough    small JSON passthrough with wrk: direct, nginx, RewriteProxy, bare Kestrel+YARP
+#   scripts/bench.sh stores         the hits subject with the SQLite store (proxy) and the PostgreSQL store (proxyB, on a
+#                                   throwaway cluster of Debian's postgresql started here as the postgres user) in one run
 #   scripts/bench.sh lanes          wrk throughput of exact and semantic hits, and the request-log A/B
 #   scripts/bench.sh soak [min]     mixed traffic at a bounded rate for min minutes (default 10); VmRSS sampled every
 #                                   10 s; exits 1 when it grows more than 5 % after the 2-minute warm-up
@@ -54,8 +56,8 @@ forwarder_port=${BENCH_FORWARDER_PORT:-18094}
 sse_port=${BENCH_SSE_PORT:-18095}
 read -r -a proxy_args <<< "${BENCH_PROXY_ARGS:-}"
 read -r -a proxy_env <<< "${BENCH_PROXY_ENV:-}"
-case "$mode" in all|fanout|rss|hits|passthrough|lanes|soak|restart) ;; *)
-  echo "usage: scripts/bench.sh [all | fanout | rss | hits | passthrough | lanes | soak [minutes] | restart [entries]]" >&2; exit 2 ;; esac
+case "$mode" in all|fanout|rss|hits|stores|passthrough|lanes|soak|restart) ;; *)
+  echo "usage: scripts/bench.sh [all | fanout | rss | hits | stores | passthrough | lanes | soak [minutes] | restart [entries]]" >&2; exit 2 ;; esac
 
 # ---- what it needs ------------------------------------------------------------------------------------------------
 need=()
@@ -78,7 +80,7 @@ dotnet build proxy/RewriteProxy.csproj -c Release -v q -nologo >/dev/null
 proxy_bin="$root/proxy/bin/Release/net10.0/rewriteproxy"
 case "$mode" in all|fanout|rss|passthrough|lanes) dotnet build scripts/bench/forwarder/Forwarder.csproj -c Release -v q -nologo >/dev/null ;; esac
 case "$mode" in all|fanout|rss) dotnet build scripts/bench/fanout/Fanout.csproj -c Release -v q -nologo >/dev/null ;; esac
-case "$mode" in all|hits|restart) dotnet build tests/RewriteProxy.Benchmarks/RewriteProxy.Benchmarks.csproj -c Release -v q -nologo >/dev/null ;; esac
+case "$mode" in all|hits|stores|restart) dotnet build tests/RewriteProxy.Benchmarks/RewriteProxy.Benchmarks.csproj -c Release -v q -nologo >/dev/null ;; esac
 forwarder_bin="$root/scripts/bench/forwarder/bin/Release/net10.0/Forwarder"
 fanout_bin="$root/scripts/bench/fanout/bin/Release/net10.0/fanout"
 hits_dll="$root/tests/RewriteProxy.Benchmarks/bin/Release/net10.0/RewriteProxy.Benchmarks.dll"
@@ -96,6 +98,7 @@ stop_pid() {
 }
 cleanup() {
   for pid in "${pids[@]}"; do stop_pid "$pid"; done
+  if declare -F pg_stop >/dev/null; then pg_stop; fi
   [ "${BENCH_KEEP:-0}" = 1 ] && echo "bench.sh: kept $work" || rm -rf "$work"
 }
 trap cleanup EXIT
@@ -474,6 +477,41 @@ run_hits() {
   fi
 }
 
+# ---- hits on both stores ---------------------------------------------------------------------------------------------
+# A throwaway PostgreSQL cluster in $work/pg owned by the postgres user, on 127.0.0.1, removed with $work.
+start_postgres() {
+  pg_bin=$(ls -d /usr/lib/postgresql/*/bin 2>/dev/null | sort -V | tail -1)
+  local bin=$pg_bin
+  [ -x "$bin/initdb" ] || { echo "bench.sh: stores needs Debian's postgresql package (apt-get install postgresql)" >&2; exit 2; }
+  pg_port=${BENCH_PG_PORT:-18096}
+  mkdir -p "$work/pg"; chown postgres "$work/pg"
+  runuser -u postgres -- "$bin/initdb" -D "$work/pg/data" -A trust -U postgres >/dev/null
+  runuser -u postgres -- "$bin/pg_ctl" -D "$work/pg/data" -l "$work/pg/log" -w \
+    -o "-c listen_addresses=127.0.0.1 -p $pg_port -k $work/pg -c fsync=on" start >/dev/null
+  pg_stop() { runuser -u postgres -- "$pg_bin/pg_ctl" -D "$work/pg/data" -m fast stop >/dev/null 2>&1 || true; }
+  runuser -u postgres -- psql -h "$work/pg" -p "$pg_port" -qc "CREATE ROLE bench LOGIN" >/dev/null
+  runuser -u postgres -- psql -h "$work/pg" -p "$pg_port" -qc "CREATE DATABASE bench OWNER bench" >/dev/null
+  echo "  postgres: $("$bin/postgres" --version), 127.0.0.1:$pg_port, fsync on"
+}
+
+run_stores() {
+  start_postgres
+  BENCH_B_ARGS="--Store:Provider=postgres --Store:ConnectionString=Host=127.0.0.1;Port=$pg_port;Username=bench;Database=bench ${BENCH_B_ARGS:-}"
+  run_hits
+  local json="$work/hits.json"
+  echo "== stores: the same hits on the SQLite store (proxy) and the PostgreSQL store (proxyB), one run"
+  echo "| case | sqlite p50 | sqlite p99 | postgres p50 | postgres p99 | postgres/sqlite p50 |"
+  echo "| --- | --- | --- | --- | --- | --- |"
+  local c
+  for c in semantic exact; do
+    local a50 a99 b50 b99
+    a50=$(jq ".\"$c-hit\".p50" "$json"); a99=$(jq ".\"$c-hit\".p99" "$json")
+    b50=$(jq ".\"$c-hit-b\".p50" "$json"); b99=$(jq ".\"$c-hit-b\".p99" "$json")
+    printf '| %s hit | %.3f ms | %.3f ms | %.3f ms | %.3f ms | %.2f |\n' "$c" "$a50" "$a99" "$b50" "$b99" "$(ratio "$b50" "$a50")"
+  done
+  pg_stop
+}
+
 # ---- small passthrough against nginx ----------------------------------------------------------------------------------
 run_passthrough() {
   local json_body; json_body=$(chat_body "$question")
@@ -563,4 +601,4 @@ summary() {
 }
 
 # One line, parsed whole before it runs: editing this file during a run cannot change what the run does next.
-case "$mode" in all) run_fanout; run_hits; run_passthrough; summary ;; fanout) run_fanout; summary ;; rss) run_fanout 1; summary ;; hits) run_hits; summary ;; passthrough) run_passthrough; summary ;; lanes) run_lanes ;; soak) run_soak "$soak_minutes" ;; restart) run_restart "$restart_entries"; summary ;; esac; exit $?
+case "$mode" in all) run_fanout; run_hits; run_passthrough; summary ;; fanout) run_fanout; summary ;; rss) run_fanout 1; summary ;; hits) run_hits; summary ;; stores) run_stores ;; passthrough) run_passthrough; summary ;; lanes) run_lanes ;; soak) run_soak "$soak_minutes" ;; restart) run_restart "$restart_entries"; summary ;; esac; exit $?

@@ -8,6 +8,9 @@ command -v promtool   >/dev/null 2>&1 || need+=(prometheus)
 command -v prometheus >/dev/null 2>&1 || need+=(prometheus)
 [ -d /usr/share/wordnet ] || need+=(wordnet-base)
 [ -d /usr/share/fonts/truetype/dejavu ] || need+=(fonts-dejavu-core)   # text in the tune charts
+# The PostgreSQL store's tests start throwaway clusters with the server's initdb and pg_ctl (Fixtures/PostgresCluster).
+pg_bin="$(pg_config --bindir 2>/dev/null || true)"
+{ [ -n "$pg_bin" ] && [ -x "$pg_bin/initdb" ]; } || compgen -G '/usr/lib/postgresql/*/bin/initdb' >/dev/null || need+=(postgresql)
 if [ ${#need[@]} -gt 0 ]; then
   echo "test.sh: installing ${need[*]}"
   export DEBIAN_FRONTEND=noninteractive

@@ -2,8 +2,8 @@
 namespace RewriteProxy.Cache;
 
 /// <summary>
-/// Why the anchor guard refused a semantic candidate, in the order the guard checks; the <c>reason</c> label of
-/// <c>rewriteproxy_guard_rejections_total</c>.
+/// Why the hit decision refused a semantic candidate, in the order it checks (the anchor guard's reasons first); the
+/// <c>reason</c> label of <c>rewriteproxy_guard_rejections_total</c>.
 /// </summary>
 public enum AnchorReason
 {
@@ -17,10 +17,17 @@ public enum AnchorReason
     Identifier,
     /// <summary>A word in one question has its antonym in the other.</summary>
     Contrast,
+    /// <summary>The hit decision: time frames differ ("monthly" / "annually", "this quarter" / "last quarter", "per day" / "per meal").</summary>
+    TimeFrame,
+    /// <summary>The hit decision: a comparator around a number points the other way ("over 25" / "under 25", "within" / "after 12 months").</summary>
+    Comparator,
+    /// <summary>The hit decision: one question asks about an obligation ("must I", "do I have to") and the other does not ("can I").</summary>
+    Obligation,
     /// <summary>The hit decision: two parts of the question trade places ("the buyer pays the seller" / "the seller pays the buyer").</summary>
     Role,
-    /// <summary>The hit decision: a word was replaced, added or dropped, and WordNet has no sense the two share ("diesel" / "petrol").</summary>
-    Substitution,
+    /// <summary>The hit decision's learned combiner: what the word alignment left unexplained, weighed with the similarity, says the
+    /// two questions differ (Cache/Resources/hit-combiner.tsv).</summary>
+    Learned,
 }
 
 /// <summary>

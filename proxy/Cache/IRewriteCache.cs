@@ -41,6 +41,20 @@ public interface IRewriteCache
     /// <exception cref="CacheFailure">the store or the index failed.</exception>
     Task StoreAsync(CacheKey key, float[]? questionVector, AcceptedRewrite rewrite, CancellationToken cancel);
 
+    /// <summary>
+    /// Claims the miss of <paramref name="key"/> for this process, for at most <paramref name="hold"/>: false when another
+    /// process sharing the store holds it (then <see cref="AwaitClaimAsync"/>). Always true on a store of one process.
+    /// </summary>
+    /// <exception cref="CacheFailure">the store failed.</exception>
+    Task<bool> ClaimMissAsync(CacheKey key, TimeSpan hold, CancellationToken cancel);
+
+    /// <summary>Lets go of this process's claim, entry stored or not. Never throws.</summary>
+    Task ReleaseMissAsync(CacheKey key);
+
+    /// <summary>Waits at most <paramref name="wait"/> for the entry of another process's claim on <paramref name="key"/>.</summary>
+    /// <exception cref="CacheFailure">the store failed.</exception>
+    Task<ClaimWait> AwaitClaimAsync(CacheKey key, TimeSpan wait, CancellationToken cancel);
+
     /// <summary>Counts a served hit on its entry (least recently hit entries are evicted first).</summary>
     void RecordHit(StoredEntry entry);
 

@@ -1,99 +1,4 @@
-using System.Text.RegularExpressions;
-
 namespace RewriteProxy.Cache;
-
-/// <summary>
-/// The words of one question as the hit decision aligns them: lower-case, split at hyphens and apostrophes' "s",
-/// each with its WordNet lemmas and its word class. Read once per question.
-/// </summary>
-public sealed partial class QuestionWords
-{
-    internal QuestionWords(string[] raw, string[] words, string[][] lemmas, WordClass[] classes, WordUnit[] units)
-    {
-        Raw = raw;
-        Words = words;
-        Lemmas = lemmas;
-        Classes = classes;
-        Units = units;
-    }
-
-    /// <summary>Every word's lemmas, and every compound of two or three words that WordNet knows ("pay back", "first aid kit"), with the words it covers.</summary>
-    internal WordUnit[] Units { get; }
-
-    internal string[] Raw { get; }
-    internal string[] Words { get; }
-    internal string[][] Lemmas { get; }
-    internal WordClass[] Classes { get; }
-    public int Count => Words.Length;
-
-    [GeneratedRegex(@"[\p{L}\p{N}]+(?:['’][\p{L}]+)?")]
-    private static partial Regex WordPattern();
-
-    internal static QuestionWords Read(string question, WordSenses senses)
-    {
-        var raw = new List<string>();
-        foreach (Match m in WordPattern().Matches(question))
-        {
-            var w = m.Value.Replace('’', '\'');
-            if (w.EndsWith("'s", StringComparison.OrdinalIgnoreCase)) w = w[..^2];
-            else if (w.EndsWith("n't", StringComparison.OrdinalIgnoreCase)) { raw.Add(w[..^3]); w = "not"; }
-            else if (w.EndsWith("'re", StringComparison.OrdinalIgnoreCase) || w.EndsWith("'ve", StringComparison.OrdinalIgnoreCase)
-                     || w.EndsWith("'ll", StringComparison.OrdinalIgnoreCase)) w = w[..^3];
-            else if (w.EndsWith("'m", StringComparison.OrdinalIgnoreCase) || w.EndsWith("'d", StringComparison.OrdinalIgnoreCase)) w = w[..^2];
-            if (w.Length > 0) raw.Add(w);
-        }
-        var words = raw.Select(w => w.ToLowerInvariant()).ToArray();
-        var lemmas = words.Select(w => w.Any(char.IsDigit) ? [w] : senses.Lemmas(w)).ToArray();
-        var classes = words.Select(Classify).ToArray();
-        var units = new List<WordUnit>();
-        for (var k = 0; k < words.Length; k++)
-        {
-            if (classes[k] == WordClass.Number) continue;
-            units.Add(new WordUnit(k, 1, lemmas[k]));
-            for (var len = 2; len <= 3 && k + len <= words.Length; len++)
-            {
-                var compound = string.Join(' ', words[k..(k + len)]);
-                if (senses.Knows(compound)) units.Add(new WordUnit(k, len, [compound]));
-                // "paying back" → "pay back"
-                var tail = string.Join(' ', words[(k + 1)..(k + len)]);
-                foreach (var lemma in lemmas[k])
-                {
-                    var head = lemma + " " + tail;
-                    if (head != compound && senses.Knows(head))
-                    {
-                        units.Add(new WordUnit(k, len, [head]));
-                        break;
-                    }
-                }
-            }
-        }
-        return new QuestionWords([.. raw], words, lemmas, classes, [.. units]);
-    }
-
-    static WordClass Classify(string word)
-    {
-        if (word.Any(char.IsDigit) || AnchorLexicon.Cardinals.ContainsKey(word) || HitLexicon.NumberWords.Contains(word)) return WordClass.Number;
-        if (HitLexicon.Function.Contains(word)) return WordClass.Function;
-        if (HitLexicon.Particles.Contains(word)) return WordClass.Particle;
-        return WordClass.Content;
-    }
-}
-
-/// <summary>A word or a compound WordNet knows, by the words it covers.</summary>
-internal readonly record struct WordUnit(int Start, int Length, string[] Lemmas);
-
-/// <summary>How a word takes part in the comparison of two questions.</summary>
-internal enum WordClass : byte
-{
-    /// <summary>Carries the meaning: a substitution of it must be a synonym.</summary>
-    Content,
-    /// <summary>Prepositions and particles: they matter where they replace another ("opt in" / "opt out"), not where a rewording adds them.</summary>
-    Particle,
-    /// <summary>Articles, pronouns, auxiliaries, question words, fillers: rewordings change them freely.</summary>
-    Function,
-    /// <summary>Numbers: compared by the anchor guard, not here.</summary>
-    Number,
-}
 
 /// <summary>What differs between two questions once their words are aligned (longest common subsequence on lemmas).</summary>
 /// <param name="NovelAsked">Words of the asked question that nothing in the cached one explains (not the same lemma, a WordNet synonym, a derived form or an abbreviation).</param>
@@ -103,6 +8,15 @@ internal enum WordClass : byte
 public sealed record QuestionDiff(IReadOnlyList<string> NovelAsked, IReadOnlyList<string> NovelCached, int Substitutions, string? Swap)
 {
     public int Novel => NovelAsked.Count + NovelCached.Count;
+
+    /// <summary>Each gap of the alignment that holds a novel word: the positions of its novel words in each question.</summary>
+    internal IReadOnlyList<(int[] Asked, int[] Cached)> Gaps { get; init; } = [];
+
+    /// <summary>Content words of the asked question matched in order to one of the cached question (the same lemma).</summary>
+    internal int Aligned { get; init; }
+
+    /// <summary>Content words outside the alignment that another word explains: moved, a synonym, a derived form, an abbreviation.</summary>
+    internal int ExplainedWords { get; init; }
 
     internal static QuestionDiff Compare(QuestionWords a, QuestionWords b, WordSenses senses, List<string>? trace = null)
     {
@@ -120,7 +34,7 @@ public sealed record QuestionDiff(IReadOnlyList<string> NovelAsked, IReadOnlyLis
             pb = j;
         }
 
-        var swap = Permuted(a, b, out var reordered);
+        var swap = Permuted(a.Words, b.Words, clausesMove: true, out var reordered) ?? PronounTrade(a, b);
         var byA = a.Words.Count(w => w == "by");
         var byB = b.Words.Count(w => w == "by");
         // A passive agent ("released by the card issuer" / "the card issuer releases") moves a part without changing its
@@ -131,10 +45,14 @@ public sealed record QuestionDiff(IReadOnlyList<string> NovelAsked, IReadOnlyLis
                     swap = $"'{Text(a, gaps[x].A)}' and '{Text(a, gaps[y].A)}' trade places";
 
         var substitutions = 0;
+        var explained = 0;
+        var novelGaps = new List<(int[], int[])>();
         foreach (var (gapA, gapB) in gaps)
         {
             var openA = gapA.Where(k => !Explained(a, k, b, senses, trace)).ToList();
             var openB = gapB.Where(k => !Explained(b, k, a, senses, trace)).ToList();
+            explained += gapA.Count(k => a.Classes[k] == WordClass.Content && !openA.Contains(k))
+                + gapB.Count(k => b.Classes[k] == WordClass.Content && !openB.Contains(k));
             // A particle counts only where the other question has something unexplained in its place ("opt in" / "opt out"),
             // not where a rewording adds one ("who cleans" / "by whom is ... cleaned").
             var twoSided = openA.Count > 0 && openB.Count > 0;
@@ -143,8 +61,14 @@ public sealed record QuestionDiff(IReadOnlyList<string> NovelAsked, IReadOnlyLis
             novelA.AddRange(na.Select(k => a.Words[k]));
             novelB.AddRange(nb.Select(k => b.Words[k]));
             if (na.Count > 0 && nb.Count > 0) substitutions++;
+            if (na.Count > 0 || nb.Count > 0) novelGaps.Add(([.. na], [.. nb]));
         }
-        return new QuestionDiff(novelA, novelB, substitutions, swap);
+        return new QuestionDiff(novelA, novelB, substitutions, swap)
+        {
+            Gaps = novelGaps,
+            Aligned = matches.Count(m => a.Classes[m.Item1] == WordClass.Content),
+            ExplainedWords = explained,
+        };
     }
 
     static string Text(QuestionWords q, List<int> at) => string.Join(' ', at.Select(k => q.Words[k]));
@@ -164,20 +88,20 @@ public sealed record QuestionDiff(IReadOnlyList<string> NovelAsked, IReadOnlyLis
     /// companion pass holder bring a carer"). Clauses moved as a whole ("If I miss a resit, do I …" / "Do I … if I miss a
     /// resit") and lists in another order ("bank or building society") are not such a trade.
     /// </summary>
-    static string? Permuted(QuestionWords a, QuestionWords b, out bool reordered)
+    static string? Permuted(string[] a, string[] b, bool clausesMove, out bool reordered)
     {
         reordered = false;
-        if (a.Count != b.Count || a.Words.SequenceEqual(b.Words)) return null;
-        if (!a.Words.Order(StringComparer.Ordinal).SequenceEqual(b.Words.Order(StringComparer.Ordinal))) return null;
+        if (a.Length != b.Length || a.SequenceEqual(b)) return null;
+        if (!a.Order(StringComparer.Ordinal).SequenceEqual(b.Order(StringComparer.Ordinal))) return null;
         reordered = true;
-        for (var k = 1; k < a.Count; k++)
-            if (a.Words[k..].Concat(a.Words[..k]).SequenceEqual(b.Words)) return null;
+        for (var k = 1; k < a.Length; k++)
+            if (a[k..].Concat(a[..k]).SequenceEqual(b)) return null;
         // The stretch that differs: X · middle · Y in one, Y · middle · X in the other.
-        int first = 0, last = a.Count - 1;
-        while (a.Words[first] == b.Words[first]) first++;
-        while (a.Words[last] == b.Words[last]) last--;
-        var x = a.Words[first..(last + 1)];
-        var y = b.Words[first..(last + 1)];
+        int first = 0, last = a.Length - 1;
+        while (a[first] == b[first]) first++;
+        while (a[last] == b[last]) last--;
+        var x = a[first..(last + 1)];
+        var y = b[first..(last + 1)];
         for (var lx = 1; lx < x.Length; lx++)
             for (var ly = 1; lx + ly <= x.Length; ly++)
             {
@@ -186,12 +110,32 @@ public sealed record QuestionDiff(IReadOnlyList<string> NovelAsked, IReadOnlyLis
                 // "a porch and a new path" / "a new path and a porch": a list in another order asks the same.
                 if (middle.All(w => w is "and" or "or" or "to" or "a" or "an" or "the" or "nor" or "with")) return null;
                 // A clause moved with its subject or opener ("Once I submit a claim, who approves it?") is not a trade of roles.
-                if (x[..lx].Concat(x[^ly..]).Any(HitLexicon.ClauseWords.Contains)) return null;
+                if (clausesMove && x[..lx].Concat(x[^ly..]).Any(HitLexicon.ClauseWords.Contains)) return null;
                 // Something that acts between them: a verb ("pay", "need"), not only articles, possessives and "is".
                 if (middle.Any(w => !HitLexicon.Linking.Contains(w)))
                     return $"'{string.Join(' ', x[..lx])}' and '{string.Join(' ', x[^ly..])}' trade places around '{string.Join(' ', middle)}'";
             }
         return null;
+    }
+
+    static readonly (string Subject, string Object)[] PronounCases = [("i", "me"), ("we", "us"), ("he", "him"), ("they", "them")];
+
+    /// <summary>
+    /// Parts that trade places while a pronoun changes case ("Does my employer have to tell me" / "Do I have to tell my
+    /// employer"): the same words once pronouns and auxiliaries are read in one form, traded around a verb.
+    /// </summary>
+    static string? PronounTrade(QuestionWords a, QuestionWords b)
+    {
+        if (!PronounCases.Any(p => a.Words.Count(w => w == p.Subject) != b.Words.Count(w => w == p.Subject)
+                                   && a.Words.Count(w => w == p.Object) != b.Words.Count(w => w == p.Object))) return null;
+        return Permuted(Plain(a.Words), Plain(b.Words), clausesMove: false, out _);
+
+        static string[] Plain(string[] words) => words.Select(w => w switch
+        {
+            "me" => "i", "us" => "we", "him" => "he", "them" => "they", "does" or "did" => "do", "has" or "had" => "have",
+            "am" or "is" or "are" or "was" or "were" => "be",
+            _ => w,
+        }).ToArray();
     }
 
     static bool SameLemma(string[] x, string[] y)

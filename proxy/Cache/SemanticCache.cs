@@ -21,6 +21,7 @@ public sealed class SemanticCache : IRewriteCache
     readonly HitDecision _decision;
     readonly LaneTally _tally;
     readonly StoreOptions _options;
+    readonly MissClaims _claims;
 
     public SemanticCache(IRewriteStore store, VectorIndex index, HotEntries hot, IEmbedder embedder, AnchorGuard guard, LaneTally tally,
         StoreOptions options)
@@ -34,6 +35,7 @@ public sealed class SemanticCache : IRewriteCache
         _decision = new HitDecision(guard);
         _tally = tally;
         _options = options;
+        _claims = new MissClaims(store, FindExactAsync);
     }
 
     DateTimeOffset MinCreated => DateTimeOffset.UtcNow - _options.Ttl;
@@ -147,6 +149,12 @@ public sealed class SemanticCache : IRewriteCache
             throw new CacheFailure(FailOpenReason.Index, e.Message, e);
         }
     }
+
+    public Task<bool> ClaimMissAsync(CacheKey key, TimeSpan hold, CancellationToken cancel) => _claims.ClaimAsync(key, hold, cancel);
+
+    public Task ReleaseMissAsync(CacheKey key) => _claims.ReleaseAsync(key);
+
+    public Task<ClaimWait> AwaitClaimAsync(CacheKey key, TimeSpan wait, CancellationToken cancel) => _claims.AwaitAsync(key, wait, cancel);
 
     public void RecordHit(StoredEntry entry) => _store.RecordHit(entry.Id, DateTimeOffset.UtcNow);
 

@@ -9,7 +9,7 @@ namespace RewriteProxy.Cache;
 /// irregular forms. The hit decision asks it whether a substituted word means the same as the word it replaced.
 /// Immutable, thread-safe; loaded once, on first use (about 145k words).
 /// </summary>
-internal sealed class WordSenses
+internal sealed partial class WordSenses
 {
     public const string ResourceName = "RewriteProxy.Cache.senses.tsv.gz";
 

@@ -71,7 +71,9 @@ public static class SiblingGuard
 
     /// <summary>
     /// As the public overload, with λ and the relevance floor given (a floor at or above MaxDrift turns it off): for the
-    /// measurements that chose <see cref="Relevance"/> and <see cref="RelevanceFloor"/>.
+    /// measurements that chose <see cref="Relevance"/> and <see cref="RelevanceFloor"/>. <paramref name="consensus"/> weighs a
+    /// candidate's mean cosine to the other candidates beside its cosine to the question when ranking (the centroid idea of
+    /// relevance feedback, Rocchio 1971): measured on the dev sibling sets and not shipped (0), see docs/measurements/precision.md.
     /// </summary>
     internal static SiblingJudgement Judge(
         float[] question,
@@ -80,7 +82,8 @@ public static class SiblingGuard
         string completion,
         IDriftLimits lane,
         double relevance,
-        double floor)
+        double floor,
+        double consensus = 0)
     {
         if (candidates.Count != vectors.Count)
             throw new ArgumentException($"{candidates.Count} candidates but {vectors.Count} vectors.", nameof(vectors));
@@ -94,6 +97,15 @@ public static class SiblingGuard
             if (drift[i] > lane.MaxDrift) dropped.Add(new(candidates[i], drift[i], false, DropReason.Drift));
             else if (drift[i] < lane.MinSpread) dropped.Add(new(candidates[i], drift[i], false, DropReason.Echo));
             else pool.Add(i);
+        }
+
+        // How near each candidate is to the question, and (weighted by consensus) to the other candidates on average.
+        var near = new double[candidates.Count];
+        foreach (var i in pool)
+        {
+            // Not computed when unused (the shipped 0): n² cosines on every judged completion.
+            var agreement = consensus == 0 || pool.Count < 2 ? 0 : pool.Where(j => j != i).Average(j => Cosine(vectors[i], vectors[j]));
+            near[i] = (1 - consensus) * (1 - drift[i]) + consensus * agreement;
         }
 
         var kept = new List<int>();
@@ -111,7 +123,7 @@ public static class SiblingGuard
             {
                 if (withinFloor && drift[i] > floor) continue;
                 var redundancy = kept.Count == 0 || !withinFloor ? 0 : nearestKept[i];
-                var score = withinFloor ? relevance * (1 - drift[i]) - (1 - relevance) * redundancy : 1 - drift[i];
+                var score = withinFloor ? relevance * near[i] - (1 - relevance) * redundancy : near[i];
                 if (score > bestScore) { bestScore = score; best = i; }
             }
             pool.Remove(best);

@@ -36,6 +36,7 @@ public static class OptionsReader
             ConnectionString = r.String("Store:ConnectionString"),
             MaxEntries = r.Long("Store:MaxEntries", storeDefaults.MaxEntries, min: 1),
             Ttl = r.Duration("Store:Ttl", storeDefaults.Ttl, positive: true),
+            ClaimWait = r.Duration("Store:ClaimWait", storeDefaults.ClaimWait, positive: true),
             // Empty (not absent) turns snapshots off, so this one key is read as written.
             IndexSnapshotPath = config["Store:IndexSnapshotPath"]?.Trim() ?? StoreOptions.SnapshotPathFor(provider, storePath),
             IndexSnapshotInterval = r.Duration("Store:IndexSnapshotInterval", storeDefaults.IndexSnapshotInterval, positive: true),

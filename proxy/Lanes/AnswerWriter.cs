@@ -14,11 +14,17 @@ public static class AnswerWriter
     /// <summary>A hit: the entry's content with the scores its miss reported, so a hit says what the miss said.</summary>
     public static Task WriteHitAsync(HttpContext context, LaneRequest request, LookupResult found)
     {
-        var entry = found.Entry!;
         var headers = context.Response.Headers;
         var semantic = found.Kind == LookupKind.HitSemantic;
         headers[RewriteHeaders.Cache] = RewriteHeaders.CacheValue(semantic ? CacheResult.HitSemantic : CacheResult.HitExact);
         if (semantic) headers[RewriteHeaders.Similarity] = RewriteHeaders.Decimal(found.Similarity!.Value);
+        return WriteEntryAsync(context, request, found.Entry!);
+    }
+
+    /// <summary>An entry's content, with the scores its miss reported, in the call's format.</summary>
+    static Task WriteEntryAsync(HttpContext context, LaneRequest request, StoredEntry entry)
+    {
+        var headers = context.Response.Headers;
         if (entry.Scores.MaxDrift is { } drift) headers[RewriteHeaders.Drift] = RewriteHeaders.Decimal(drift);
         headers[RewriteHeaders.Dropped] = RewriteHeaders.Count(entry.Scores.Dropped);
         headers[RewriteHeaders.SavedTokens] = RewriteHeaders.Count(SavedTokens(entry));
@@ -48,6 +54,9 @@ public static class AnswerWriter
                 foreach (var (name, values) in r.Upstream.Headers) headers[name] = values;
                 context.Response.ContentLength = r.Upstream.Body.Length;
                 await context.Response.Body.WriteAsync(r.Upstream.Body, context.RequestAborted);
+                break;
+            case MissOutcome.Shared s:
+                await WriteEntryAsync(context, request, s.Entry);
                 break;
             case MissOutcome.Error e:
                 await request.Format.WriteErrorAsync(context, e.Status, e.Message, e.Type, e.Code);

@@ -17,11 +17,13 @@ public sealed record LaneOptions : IDriftLimits
     public required LaneKind Kind { get; init; }
 
     /// <summary>
-    /// Least cosine similarity of two questions for a semantic hit. Default 0.85, measured with the anchor guard on
-    /// (docs/measurements/anchor-guard.md): from 0.90 to 0.85 paraphrase hits rise from 21 to 30 of 34 while guarded
-    /// near-miss hits stay at 0.
+    /// Least cosine similarity of two questions for a semantic candidate; the hit decision then serves or refuses it. Default
+    /// 0.55, the floor the learned combiner was trained and cross-validated at (Cache/Resources/hit-combiner.tsv,
+    /// docs/measurements/precision.md): restructured paraphrases score well below 0.85, and the decision, not the cosine,
+    /// tells them from near-misses. Below the combiner's floor nothing is served; above it, a higher value serves fewer
+    /// paraphrases.
     /// </summary>
-    public double HitSimilarity { get; init; } = 0.85;
+    public double HitSimilarity { get; init; } = 0.55;
 
     /// <summary>
     /// Largest drift (1 − cosine to the question) a rewrite may have. Default per kind, measured on the labelled list

@@ -120,7 +120,8 @@ public sealed class LaneRouter(RewriteProxyOptions options, IRewriteCache cache,
             // The client left; a coalesced call goes on for the others and is still stored.
             return;
         }
-        if (joined) ProxyMetrics.Coalesced.WithLabels(lane.Name).Inc();
+        // Joined on this process, or served the entry of another replica's call on the same question.
+        if (joined || outcome is MissOutcome.Shared) ProxyMetrics.Coalesced.WithLabels(lane.Name).Inc();
         var result = directives.NoStore ? CacheResult.Bypass : CacheResult.Miss;
         tally.Lookup(lane.Name, result);
         context.Response.Headers[RewriteHeaders.Cache] = RewriteHeaders.CacheValue(result);

@@ -1,4 +1,5 @@
 using System.Text.Json.Nodes;
+using RewriteProxy.Store;
 
 namespace RewriteProxy.Lanes;
 
@@ -15,6 +16,12 @@ public abstract record MissOutcome
 
     /// <summary>The upstream's own non-success answer, relayed as it came; never cached.</summary>
     public sealed record Relayed(UpstreamAnswer Upstream) : MissOutcome;
+
+    /// <summary>
+    /// The entry another replica stored for the same question while this one waited on its claim: answered like a hit,
+    /// counted as a coalesced miss.
+    /// </summary>
+    public sealed record Shared(StoredEntry Entry) : MissOutcome;
 
     /// <summary>An error of the proxy's making (502 invalid answer, 504 timeout, 422 rejected draft).</summary>
     public sealed record Error(int Status, string Type, string Code, string Message) : MissOutcome;

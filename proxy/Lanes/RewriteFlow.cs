@@ -27,12 +27,12 @@ public sealed record Miss(LaneOptions Lane, LaneEndpoint Endpoint, LaneRequest R
 }
 
 /// <summary>
-/// The miss flow: one upstream call per scope and question at a time (concurrent identical misses are coalesced), the
-/// drift guard over its answer (siblings judged line by line, drafts retried or replaced by the question), every
+/// The miss flow: one upstream call per scope and question at a time (concurrent identical misses are coalesced on this
+/// process, and claimed in the store across replicas that share it), the drift guard over its answer (siblings judged line by line, drafts retried or replaced by the question), every
 /// judged rewrite counted and logged, and what was accepted stored before the answer goes out.
 /// </summary>
 public sealed class RewriteFlow(IRewriteCache cache, LaneUpstream upstream, FailOpenLog failOpen, LaneTally tally,
-    IHostApplicationLifetime lifetime, ILogger<RewriteFlow> log)
+    RewriteProxyOptions options, IHostApplicationLifetime lifetime, ILogger<RewriteFlow> log)
 {
     /// <summary>
     /// Longest a miss's response waits for its entry to be committed. Waiting is what makes an answered miss survive a
@@ -47,8 +47,46 @@ public sealed class RewriteFlow(IRewriteCache cache, LaneUpstream upstream, Fail
     {
         joined = false;
         return coalesce
-            ? _coalescer.RunAsync(miss.Key.ScopeKey + "\n" + miss.Key.Normalized, () => AskAsync(miss), out joined)
+            ? _coalescer.RunAsync(miss.Key.ScopeKey + "\n" + miss.Key.Normalized, () => ClaimAndAskAsync(miss), out joined)
             : AskAsync(miss);
+    }
+
+    /// <summary>
+    /// Single flight across replicas: the first to claim the question asks upstream; another replica's claim is waited
+    /// for (at most Store:ClaimWait) and its entry served. A replica that cannot claim or wait (the store failing) asks
+    /// upstream itself, as does one whose wait ends without an entry.
+    /// </summary>
+    async Task<MissOutcome> ClaimAndAskAsync(Miss miss)
+    {
+        // The claim outlives the holder's own longest call (retries included); a crashed holder's claim lapses after it.
+        var hold = options.Upstream.Timeout * (miss.Lane.Retries + 1) + CommitWait;
+        bool claimed;
+        try
+        {
+            claimed = await cache.ClaimMissAsync(miss.Key, hold, lifetime.ApplicationStopping);
+            if (!claimed)
+            {
+                var wait = await cache.AwaitClaimAsync(miss.Key, options.Store.ClaimWait, lifetime.ApplicationStopping);
+                ProxyMetrics.ClaimWaits.WithLabels(miss.Lane.Name, LabelValue.Of(wait.Outcome)).Inc();
+                if (wait.Entry is { } entry) return new MissOutcome.Shared(entry);
+                claimed = await cache.ClaimMissAsync(miss.Key, hold, lifetime.ApplicationStopping);
+            }
+        }
+        catch (CacheFailure f)
+        {
+            failOpen.Record(f.Reason, f.Message);
+            return await AskAsync(miss);
+        }
+        // Not claimed twice over: another replica took the question again meanwhile; asking beats waiting a second time.
+        if (!claimed) return await AskAsync(miss);
+        try
+        {
+            return await AskAsync(miss);
+        }
+        finally
+        {
+            await cache.ReleaseMissAsync(miss.Key);
+        }
     }
 
     async Task<MissOutcome> AskAsync(Miss miss)

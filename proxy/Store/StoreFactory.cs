@@ -1,5 +1,5 @@
 using Microsoft.Extensions.Logging;
-using RewriteProxy.Hosting;
+using RewriteProxy.Store.Postgres;
 using RewriteProxy.Store.Sqlite;
 
 namespace RewriteProxy.Store;
@@ -16,6 +16,8 @@ public static class StoreFactory
         if (options.Provider == StoreProvider.Postgres && string.IsNullOrWhiteSpace(options.ConnectionString))
             yield return "Store:ConnectionString is missing; Store:Provider = postgres needs the database in Npgsql's format, " +
                 "e.g. Host=db;Username=rewriteproxy;Password=...;Database=rewriteproxy (environment: REWRITEPROXY_Store__ConnectionString)";
+        else if (options.Provider == StoreProvider.Postgres && PostgresConnector.Problem(options.ConnectionString!) is { } problem)
+            yield return $"Store:ConnectionString: {problem}";
         if (options.Provider == StoreProvider.Sqlite && string.IsNullOrWhiteSpace(options.Path))
             yield return "Store:Path is empty; Store:Provider = sqlite needs the file of the store";
     }
@@ -29,11 +31,11 @@ public static class StoreFactory
         options.Provider == StoreProvider.Sqlite ? options.Path : "postgres (Store:ConnectionString)";
 
     /// <summary>A store of the configured provider, not yet opened (see <see cref="IRewriteStore.OpenAsync"/>).</summary>
-    /// <exception cref="StartupException">the provider is not available in this build.</exception>
+    /// <exception cref="ArgumentException">the settings cannot be used (<see cref="Problems"/> reports them at start).</exception>
     public static IRewriteStore Create(StoreOptions options, EventsOptions events, ILoggerFactory logs) => options.Provider switch
     {
         StoreProvider.Sqlite => new SqliteRewriteStore(options, events, logs.CreateLogger("store")),
-        StoreProvider.Postgres => throw new StartupException("store: the postgres store is not in this build (Store:Provider)"),
+        StoreProvider.Postgres => new PostgresRewriteStore(options, events, logs.CreateLogger("store")),
         _ => throw new ArgumentOutOfRangeException(nameof(options), options.Provider, "unknown Store:Provider"),
     };
 }

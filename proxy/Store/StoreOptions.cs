@@ -45,6 +45,14 @@ public sealed record StoreOptions
     public TimeSpan Ttl { get; init; } = TimeSpan.FromDays(7);
 
     /// <summary>
+    /// Longest a miss waits for another replica that is already asking upstream the same question (a shared store only),
+    /// before it asks upstream itself. Default 15 s: longer than a rewrite call usually takes (a few seconds, from
+    /// memory), and short enough that a caller whose replica died mid-call still gets its own answer well within
+    /// <c>Upstream:Timeout</c>.
+    /// </summary>
+    public TimeSpan ClaimWait { get; init; } = TimeSpan.FromSeconds(15);
+
+    /// <summary>
     /// Where the vector index is saved, to be reloaded at start instead of rebuilt; empty turns snapshots off.
     /// Default <see cref="SnapshotPathFor"/>: beside the SQLite file, or under <c>data/</c> for a shared database.
     /// </summary>
@@ -66,7 +74,7 @@ public sealed record StoreOptions
     bool PrintMembers(System.Text.StringBuilder builder)
     {
         builder.Append($"Provider = {Provider}, Path = {Path}, ConnectionString = {(ConnectionString is null ? "(none)" : "(set)")}, ");
-        builder.Append($"MaxEntries = {MaxEntries}, Ttl = {Ttl}, IndexSnapshotPath = {IndexSnapshotPath}, ");
+        builder.Append($"MaxEntries = {MaxEntries}, Ttl = {Ttl}, ClaimWait = {ClaimWait}, IndexSnapshotPath = {IndexSnapshotPath}, ");
         builder.Append($"IndexSnapshotInterval = {IndexSnapshotInterval}");
         return true;
     }

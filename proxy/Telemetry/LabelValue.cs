@@ -5,7 +5,8 @@ namespace RewriteProxy.Telemetry;
 
 /// <summary>
 /// Metric label values. Each label with reasons or results is a closed set: an enum beside the code that decides it
-/// (<c>CacheResult</c>, <c>DropReason</c>, <c>AnchorReason</c>, <c>FailOpenReason</c>, <c>BypassReason</c>), and its
+/// (<c>CacheResult</c>, <c>DropReason</c>, <c>AnchorReason</c>, <c>FailOpenReason</c>, <c>BypassReason</c>,
+/// <c>ClaimOutcome</c>), and its
 /// values are the members' names in snake_case (<c>NoQuestion</c> → <c>no_question</c>). So a value is declared once,
 /// and nothing else can become a label.
 /// </summary>

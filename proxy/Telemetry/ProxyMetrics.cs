@@ -31,6 +31,7 @@ public static class ProxyMetrics
             HitSimilarity.WithLabels(name);
             TokensSaved.WithLabels(name);
             Coalesced.WithLabels(name);
+            foreach (var o in LabelValue.All<ClaimOutcome>()) ClaimWaits.WithLabels(name, o);
             Entries.WithLabels(name);
         }
         foreach (var r in LabelValue.All<FailOpenReason>()) FailOpen.WithLabels(r);
@@ -55,7 +56,7 @@ public static class ProxyMetrics
         new HistogramConfiguration { LabelNames = ["lane"], Buckets = SimilarityBuckets });
 
     public static readonly Counter GuardRejections = Prometheus.Metrics.CreateCounter(
-        "rewriteproxy_guard_rejections_total", $"Semantic candidates refused by the hit decision (anchor guard, then what changed), by reason ({Listed<AnchorReason>()}).",
+        "rewriteproxy_guard_rejections_total", $"Semantic candidates refused by the hit decision (hard rules, then the learned combiner), by reason ({Listed<AnchorReason>()}).",
         new CounterConfiguration { LabelNames = ["lane", "reason"] });
 
     public static readonly Histogram Drift = Prometheus.Metrics.CreateHistogram(
@@ -85,6 +86,11 @@ public static class ProxyMetrics
     public static readonly Counter Coalesced = Prometheus.Metrics.CreateCounter(
         "rewriteproxy_coalesced_total", "Lane calls answered from another caller's in-flight upstream call.",
         new CounterConfiguration { LabelNames = ["lane"] });
+
+    public static readonly Counter ClaimWaits = Prometheus.Metrics.CreateCounter(
+        "rewriteproxy_claim_waits_total",
+        $"Lane misses that waited for another replica's claim on the same question, by how the wait ended ({Listed<ClaimOutcome>()}).",
+        new CounterConfiguration { LabelNames = ["lane", "result"] });
 
     public static readonly Gauge LaneMaxDrift = Prometheus.Metrics.CreateGauge(
         "rewriteproxy_lane_max_drift", "The configured MaxDrift of each lane, for alerts that compare drift to it.",

@@ -62,12 +62,12 @@ public sealed partial class SqliteRewriteStore
         """;
 
     public async ValueTask<StoredEntry?> FindExactAsync(string scopeKey, string normalized, DateTimeOffset minCreated, CancellationToken cancel) =>
-        await ReadAsync(async c => (await c.QuerySingleOrDefaultAsync<SqliteEntryRow>(new CommandDefinition(
+        await ReadAsync(async c => (await c.QuerySingleOrDefaultAsync<EntryRow>(new CommandDefinition(
             $"SELECT {EntryColumns} FROM entries WHERE scope_key = @scopeKey AND normalized = @normalized AND created >= @min",
             new { scopeKey, normalized, min = minCreated.ToUnixTimeMilliseconds() }, cancellationToken: cancel)))?.Decode());
 
     public async ValueTask<StoredEntry?> GetAsync(long id, DateTimeOffset minCreated, CancellationToken cancel) =>
-        await ReadAsync(async c => (await c.QuerySingleOrDefaultAsync<SqliteEntryRow>(new CommandDefinition(
+        await ReadAsync(async c => (await c.QuerySingleOrDefaultAsync<EntryRow>(new CommandDefinition(
             $"SELECT {EntryColumns} FROM entries WHERE id = @id AND created >= @min",
             new { id, min = minCreated.ToUnixTimeMilliseconds() }, cancellationToken: cancel)))?.Decode());
 
@@ -127,7 +127,7 @@ public sealed partial class SqliteRewriteStore
     });
 
     public Task<IReadOnlyList<StoredEntry>> ListAsync(EntryQuery query, CancellationToken cancel) => ReadAsync(async c =>
-        (IReadOnlyList<StoredEntry>)(await c.QueryAsync<SqliteEntryRow>(new CommandDefinition($"""
+        (IReadOnlyList<StoredEntry>)(await c.QueryAsync<EntryRow>(new CommandDefinition($"""
             SELECT {EntryColumns} FROM entries
             WHERE (@Lane IS NULL OR lane = @Lane) AND (@PartitionHash IS NULL OR partition_hash = @PartitionHash)
               AND (@contains IS NULL OR instr(normalized, @contains) > 0)

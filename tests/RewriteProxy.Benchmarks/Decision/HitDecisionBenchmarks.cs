@@ -1,12 +1,16 @@
 using BenchmarkDotNet.Attributes;
 using RewriteProxy.Cache;
+using RewriteProxy.Embedding;
 
 namespace RewriteProxy.Benchmarks.Decision;
 
 /// <summary>
-/// What the hit decision adds to a semantic hit: the per-candidate work of SemanticCache.Lookup today (anchors of
-/// both questions extracted, then compared) against the decision (the same, plus words read and aligned). One
-/// operation = one candidate pair; the embedding of the question, common to both, is left out.
+/// What the hit decision adds to a semantic lookup, measured against the lookup itself in the same run. Baseline: the
+/// semantic lookup's own work for one question (the question embedded by the ONNX model, a scope of 1,000 entries
+/// searched). Then the per-candidate work: the anchor guard of before issue #12 (anchors of both questions extracted,
+/// compared), the decision as SemanticCache runs it per candidate (the stored question read, then decided; the asked
+/// question is read once per lookup), and the decision with both questions read. One operation = one lookup or one
+/// candidate pair.
 /// Run: dotnet run -c Release --project tests/RewriteProxy.Benchmarks -- --filter '*HitDecision*'
 /// </summary>
 [MemoryDiagnoser]
@@ -26,8 +30,14 @@ public class HitDecisionBenchmarks
         ("How do I opt out of the salary sacrifice pension scheme?", "How do I opt in to the salary sacrifice pension scheme?"),
     ];
 
+    const int ScopeEntries = 1000;
+    const string Scope = "bench-scope";
+
     readonly AnchorGuard _guard = new();
     HitDecision _decision = null!;
+    HitQuestion[] _asked = null!;
+    OnnxEmbedder _embedder = null!;
+    VectorIndex _index = null!;
     int _next;
 
     [GlobalSetup]
@@ -40,13 +50,41 @@ public class HitDecisionBenchmarks
             _guard.Compare(asked, cached);
             _decision.Decide(asked, cached, 0.9);
         }
+        _asked = Pairs.Select(p => _decision.Read(p.Asked)).ToArray();
+        _embedder = OnnxEmbedder.Load(new EmbeddingOptions());
+        _index = new VectorIndex(_embedder.Dimension);
+        var random = new Random(12);
+        for (var id = 0; id < ScopeEntries; id++)
+        {
+            var v = new float[_embedder.Dimension];
+            for (var d = 0; d < v.Length; d++) v[d] = (float)(random.NextDouble() - 0.5);
+            System.Numerics.Tensors.TensorPrimitives.Divide(v, System.Numerics.Tensors.TensorPrimitives.Norm<float>(v), v);
+            _index.Add(Scope, id, v);
+        }
     }
 
-    [Benchmark(Baseline = true, Description = "today: anchor guard (extract both, compare)")]
-    public bool Today()
+    [GlobalCleanup]
+    public void Cleanup() => _embedder.Dispose();
+
+    [Benchmark(Baseline = true, Description = "lookup: embed the question, search 1,000 entries")]
+    public int Lookup()
+    {
+        var (asked, _) = Pairs[_next++ % Pairs.Length];
+        return _index.Search(Scope, _embedder.Embed(asked), SemanticCache.Candidates, 0.55f).Count;
+    }
+
+    [Benchmark(Description = "before #12: anchor guard (extract both, compare)")]
+    public bool AnchorGuardOnly()
     {
         var (asked, cached) = Pairs[_next++ % Pairs.Length];
         return _guard.Compare(_guard.Extract(asked), _guard.Extract(cached)).Agree;
+    }
+
+    [Benchmark(Description = "per candidate: read the stored question, decide")]
+    public bool DecisionPerCandidate()
+    {
+        var i = _next++ % Pairs.Length;
+        return _decision.Decide(_asked[i], _decision.Read(Pairs[i].Cached), 0.9).Agree;
     }
 
     [Benchmark(Description = "hit decision (read both, decide)")]

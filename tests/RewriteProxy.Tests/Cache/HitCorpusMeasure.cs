@@ -62,13 +62,13 @@ public static class HitCorpusMeasure
         }
     }
 
-    /// <summary>Every pair through similarity, today's guard and the decision.</summary>
-    public static IReadOnlyList<MeasuredPair> Measure(HitDecision? decision = null)
+    /// <summary>Every pair of <paramref name="parts"/> (default: both) through similarity, the anchor guard alone and the decision.</summary>
+    public static IReadOnlyList<MeasuredPair> Measure(HitDecision? decision = null, IReadOnlyCollection<string>? parts = null)
     {
         var guard = new AnchorGuard();
         decision ??= new HitDecision(guard);
         var vectors = Vectors(SharedEmbedder.Instance);
-        return Pairs.Select(p =>
+        return Pairs.Where(p => parts is null || parts.Contains(p.Part)).Select(p =>
         {
             var similarity = VectorMath.Dot(vectors[p.Asked], vectors[p.Cached]);
             return new MeasuredPair(p, similarity, guard.Compare(p.Asked, p.Cached), decision.Decide(p.Asked, p.Cached, similarity));

@@ -22,6 +22,11 @@ public sealed class HitDecisionTraceTests(ITestOutputHelper output)
             output.WriteLine($"  words a: {string.Join(" ", a.Words.Select((w, k) => $"{w}[{string.Join(",", a.Lemmas[k])}:{a.Classes[k]}]"))}");
             output.WriteLine($"  {diff}");
             foreach (var t in trace) output.WriteLine("  " + t);
+            var decision = new HitDecision(guard);
+            var (qa, qb) = (decision.Read(parts[i]), decision.Read(parts[i + 1]));
+            output.WriteLine($"  frames a: [{string.Join(", ", qa.Frames.TimeFrames)}] [{string.Join(" ", qa.Frames.Comparators)}] {qa.Frames.ImplicitNegations}; "
+                + $"b: [{string.Join(", ", qb.Frames.TimeFrames)}] [{string.Join(" ", qb.Frames.Comparators)}] {qb.Frames.ImplicitNegations}");
+            output.WriteLine($"  at similarity 0.9: {decision.Decide(qa, qb, 0.9)}");
         }
     }
 }

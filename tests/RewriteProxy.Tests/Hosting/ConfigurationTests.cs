@@ -72,6 +72,22 @@ public sealed class ConfigurationTests
         Assert.DoesNotContain("s3cret-of-the-store", options.ToString());
     }
 
+    [Fact]
+    public void A_connection_string_npgsql_cannot_read_stops_the_process_naming_the_key_but_not_the_password()
+    {
+        var (exit, stdout, stderr) = RunProxyWith(new()
+        {
+            ["REWRITEPROXY_Store__Provider"] = "postgres",
+            ["REWRITEPROXY_Store__ConnectionString"] = "Host=db.invalid;Password=s3cret-of-the-store;Frobnicate=yes",
+        }, "--urls", "http://127.0.0.1:0");
+
+        Assert.NotEqual(0, exit);
+        var lines = stderr.Split('\n', StringSplitOptions.RemoveEmptyEntries);
+        Assert.Single(lines);
+        Assert.Contains("Store:ConnectionString: the PostgreSQL connection string cannot be read", lines[0]);
+        Assert.DoesNotContain("s3cret-of-the-store", stdout + stderr);
+    }
+
     [Theory]
     [InlineData(null, null, "data/rewriteproxy.db.index")]
     [InlineData(null, "/srv/cache.db", "/srv/cache.db.index")]

@@ -23,6 +23,7 @@ public sealed class DefaultsAgreeTests
         ["Store:IndexSnapshotPath"] = (o, _) => o.Store.IndexSnapshotPath,
         ["Store:MaxEntries"] = (o, _) => o.Store.MaxEntries,
         ["Store:Ttl"] = (o, _) => o.Store.Ttl,
+        ["Store:ClaimWait"] = (o, _) => o.Store.ClaimWait,
         ["Store:IndexSnapshotInterval"] = (o, _) => o.Store.IndexSnapshotInterval,
         ["Embedding:ModelPath"] = (o, _) => o.Embedding.ModelPath,
         ["Embedding:VocabPath"] = (o, _) => o.Embedding.VocabPath,

@@ -42,6 +42,7 @@ public sealed class MetricsExpositionTests(MetricsWorkloadFixture run, ITestOutp
         { "rewriteproxy_entries", "gauge", "lane" },
         { "rewriteproxy_tokens_saved_total", "counter", "lane" },
         { "rewriteproxy_coalesced_total", "counter", "lane" },
+        { "rewriteproxy_claim_waits_total", "counter", "lane,result" },
         { "rewriteproxy_fail_open_total", "counter", "reason" },
         { "rewriteproxy_lane_max_drift", "gauge", "lane" },
     };
@@ -206,7 +207,7 @@ public sealed class MetricsExpositionTests(MetricsWorkloadFixture run, ITestOutp
         var allowed = new Dictionary<string, Regex>
         {
             ["lane"] = new("^[A-Za-z0-9_-]{1,32}$"),
-            ["result"] = new("^(hit_exact|hit_semantic|miss|bypass|probe_hit|probe_miss)$"),
+            ["result"] = new("^(hit_exact|hit_semantic|miss|bypass|probe_hit|probe_miss|served|released|timed_out)$"),
             ["verdict"] = new("^(accepted|dropped)$"),
             ["reason"] = new("^[a-z_]{1,16}$"),
             ["code"] = new("^([1-5][0-9][0-9]|timeout|error|too_large)$"),

@@ -160,7 +160,12 @@ public sealed class MetricsWorkload
         [$"Lanes:{draftLane}:Retries"] = "1",
         [$"Lanes:{siblingsLane}:Kind"] = "siblings",
         [$"Lanes:{siblingsLane}:MaxDrift"] = SiblingsMaxDrift.ToString(CultureInfo.InvariantCulture),
+        // Above the default floor, so that each near-miss of the workload is the one candidate of its lookup and counts one refusal.
+        [$"Lanes:{draftLane}:HitSimilarity"] = WorkloadHitSimilarity.ToString(CultureInfo.InvariantCulture),
+        [$"Lanes:{siblingsLane}:HitSimilarity"] = WorkloadHitSimilarity.ToString(CultureInfo.InvariantCulture),
     };
+
+    public const double WorkloadHitSimilarity = 0.85;
 
     /// <summary>The project's measured defaults (docs/measurements/drift-defaults.md), set explicitly so the gauge's expected value is known here.</summary>
     public const double DraftMaxDrift = 0.50;

@@ -32,11 +32,14 @@ public sealed class PrometheusRulesTests
         Assert.DoesNotContain("FAILED", output);
     }
 
-    [Fact]
-    public void Example_scrape_config_passes_promtool_check_config()
+    [Theory]
+    [InlineData("prometheus.example.yml")]
+    // The Prometheus of config/replicas/compose.yaml: one scrape target per replica through DNS service discovery.
+    [InlineData("prometheus.replicas.yml")]
+    public void Shipped_scrape_configs_pass_promtool_check_config(string file)
     {
-        // promtool check config also checks the rule files the example names, so the relative paths must resolve.
-        var (exit, output) = PromTools.Run(PromTools.PromtoolPath, "check", "config", Path.Combine(ConfigDir, "prometheus.example.yml"));
+        // promtool check config also checks the rule files the config names, so the relative paths must resolve.
+        var (exit, output) = PromTools.Run(PromTools.PromtoolPath, "check", "config", Path.Combine(ConfigDir, file));
 
         Assert.True(exit == 0, output);
         Assert.Contains("2 rule files found", output);

@@ -1,9 +1,12 @@
 using System.Text.Json;
 
-namespace RewriteProxy.Store.Sqlite;
+namespace RewriteProxy.Store;
 
-/// <summary>An <c>entries</c> row as SQLite holds it: scores as JSON text, times as Unix milliseconds.</summary>
-internal sealed record SqliteEntryRow
+/// <summary>
+/// An <c>entries</c> row as the stores read it back: scores as JSON text, times as Unix milliseconds (SQLite keeps
+/// them so; PostgreSQL converts its timestamps in the query). Decoded once into a <see cref="StoredEntry"/>.
+/// </summary>
+internal sealed record EntryRow
 {
     public long Id { get; init; }
     public string ScopeKey { get; init; } = "";
@@ -25,8 +28,8 @@ internal sealed record SqliteEntryRow
         ResponseModel, ModelId, PromptTokens, CompletionTokens, DateTimeOffset.FromUnixTimeMilliseconds(Created),
         DateTimeOffset.FromUnixTimeMilliseconds(LastHit), HitCount);
 
-    // A damaged scores value costs the hit its drift headers, never the hit itself.
-    static EntryScores DecodeScores(string json)
+    /// <summary>A damaged scores value costs the hit its drift headers, never the hit itself.</summary>
+    public static EntryScores DecodeScores(string json)
     {
         try
         {

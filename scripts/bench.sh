@@ -15,6 +15,8 @@
 #   scripts/bench.sh lanes          wrk throughput of exact and semantic hits, and the request-log A/B
 #   scripts/bench.sh soak [min]     mixed traffic at a bounded rate for min minutes (default 10); VmRSS sampled every
 #                                   10 s; exits 1 when it grows more than 5 % after the 2-minute warm-up
+#   scripts/bench.sh restart [n]    time to the first semantic hit after a restart with n entries in one scope (default
+#                                   100000), with an index snapshot and with a rebuild (scripts/bench/restart.sh)
 #
 # Knobs (environment):
 #   BENCH_ROUNDS (3)           measured rounds per target; targets take turns within a round, ratios use the median
@@ -39,6 +41,7 @@ root=$(pwd)
 
 mode=${1:-all}
 soak_minutes=${2:-10}
+restart_entries=${2:-100000}
 duration=${BENCH_DURATION:-10s}
 warmup=${BENCH_WARMUP:-3s}
 connections=${BENCH_CONNECTIONS:-16}
@@ -53,8 +56,8 @@ forwarder_port=${BENCH_FORWARDER_PORT:-18094}
 sse_port=${BENCH_SSE_PORT:-18095}
 read -r -a proxy_args <<< "${BENCH_PROXY_ARGS:-}"
 read -r -a proxy_env <<< "${BENCH_PROXY_ENV:-}"
-case "$mode" in all|fanout|rss|hits|stores|passthrough|lanes|soak) ;; *)
-  echo "usage: scripts/bench.sh [all | fanout | rss | hits | stores | passthrough | lanes | soak [minutes]]" >&2; exit 2 ;; esac
+case "$mode" in all|fanout|rss|hits|stores|passthrough|lanes|soak|restart) ;; *)
+  echo "usage: scripts/bench.sh [all | fanout | rss | hits | stores | passthrough | lanes | soak [minutes] | restart [entries]]" >&2; exit 2 ;; esac
 
 # ---- what it needs ------------------------------------------------------------------------------------------------
 need=()
@@ -77,7 +80,7 @@ dotnet build proxy/RewriteProxy.csproj -c Release -v q -nologo >/dev/null
 proxy_bin="$root/proxy/bin/Release/net10.0/rewriteproxy"
 case "$mode" in all|fanout|rss|passthrough|lanes) dotnet build scripts/bench/forwarder/Forwarder.csproj -c Release -v q -nologo >/dev/null ;; esac
 case "$mode" in all|fanout|rss) dotnet build scripts/bench/fanout/Fanout.csproj -c Release -v q -nologo >/dev/null ;; esac
-case "$mode" in all|hits|stores) dotnet build tests/RewriteProxy.Benchmarks/RewriteProxy.Benchmarks.csproj -c Release -v q -nologo >/dev/null ;; esac
+case "$mode" in all|hits|stores|restart) dotnet build tests/RewriteProxy.Benchmarks/RewriteProxy.Benchmarks.csproj -c Release -v q -nologo >/dev/null ;; esac
 forwarder_bin="$root/scripts/bench/forwarder/bin/Release/net10.0/Forwarder"
 fanout_bin="$root/scripts/bench/fanout/bin/Release/net10.0/fanout"
 hits_dll="$root/tests/RewriteProxy.Benchmarks/bin/Release/net10.0/RewriteProxy.Benchmarks.dll"
@@ -551,6 +554,8 @@ run_passthrough() {
   echo "  per round, proxy / nginx req/s: $(for r in $(seq 1 "$rounds"); do printf '%s ' "$(ratio "${rps[proxy-r$r]}" "${rps[nginx-r$r]}")"; done)"
 }
 
+source scripts/bench/restart.sh
+
 # ---- the closing table ----------------------------------------------------------------------------------------------
 has() { [ -n "${fig[$1]:-}" ]; }
 summary() {
@@ -582,6 +587,12 @@ summary() {
     printf '| semantic hit p50 / bare run with the proxy'"'"'s session settings (2 threads, no spinning; %.3f ms) | %.2f | | |\n' \
       "${fig[hit_bare2nospin_p50]}" "$(ratio "${fig[hit_semantic_p50]}" "${fig[hit_bare2nospin_p50]}")"
   fi
+  if has restart_snapshot; then
+    printf '| restart with %s entries (#14): first semantic hit with the snapshot (ready at %s s) | %s s | ≤ 30 s | %s |\n' "${fig[restart_n]}" \
+      "${fig[restart_floor]}" "${fig[restart_snapshot]}" "$(verdict "${fig[restart_snapshot]}" '<=' 30)"
+    has restart_rebuild && printf '| restart: first semantic hit, snapshot / rebuild (%s s) | %s | | |\n' "${fig[restart_rebuild]}" \
+      "$(ratio "${fig[restart_snapshot]}" "${fig[restart_rebuild]}")"
+  fi
   if has pass_ratio; then
     printf '| small passthrough req/s, proxy / nginx | %.2f | ≥ 0.5 | %s |\n' "${fig[pass_ratio]}" "$(verdict "${fig[pass_ratio]}" '>=' 0.5)"
     printf '| small passthrough req/s, bare Kestrel+YARP / nginx; proxy / bare | %.2f; %.2f | (the stack'"'"'s floor) | |\n' "${fig[pass_yarp_ratio]}" "${fig[pass_proxy_yarp]}"
@@ -590,4 +601,4 @@ summary() {
 }
 
 # One line, parsed whole before it runs: editing this file during a run cannot change what the run does next.
-case "$mode" in all) run_fanout; run_hits; run_passthrough; summary ;; fanout) run_fanout; summary ;; rss) run_fanout 1; summary ;; hits) run_hits; summary ;; stores) run_stores ;; passthrough) run_passthrough; summary ;; lanes) run_lanes ;; soak) run_soak "$soak_minutes" ;; esac; exit $?
+case "$mode" in all) run_fanout; run_hits; run_passthrough; summary ;; fanout) run_fanout; summary ;; rss) run_fanout 1; summary ;; hits) run_hits; summary ;; stores) run_stores ;; passthrough) run_passthrough; summary ;; lanes) run_lanes ;; soak) run_soak "$soak_minutes" ;; restart) run_restart "$restart_entries"; summary ;; esac; exit $?

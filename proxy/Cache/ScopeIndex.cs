@@ -53,7 +53,7 @@ internal sealed partial class ScopeIndex : IDisposable
         try { AppendRow(id, vector); }
         finally { _gate.ExitWriteLock(); }
 
-        if (_graph is { } graph)
+        if (_graph is { } graph && !DeferredAdd(graph, id, vector))
         {
             _gate.EnterReadLock();
             try { graph.Add(id, vector); }
@@ -83,7 +83,7 @@ internal sealed partial class ScopeIndex : IDisposable
             var last = _count - 1;
             if (row != last)
             {
-                RowSpan(last).CopyTo(RowSpan(row));
+                RowSpan(last).CopyTo(WritableRow(row));
                 _ids[row] = _ids[last];
                 _rowOf[_ids[row]] = row;
             }
@@ -94,7 +94,7 @@ internal sealed partial class ScopeIndex : IDisposable
         finally { _gate.ExitWriteLock(); }
 
         // Search drops graph hits whose id has no row, so the short window before this line returns nothing stale.
-        if (graph is not null)
+        if (graph is not null && !DeferredRemove(graph, id))
         {
             _gate.EnterReadLock();
             try { graph.Remove(id); }
@@ -190,7 +190,7 @@ internal sealed partial class ScopeIndex : IDisposable
             // A new scope starts with a small chunk that doubles up to ChunkRows, so the many tiny scopes stay tiny.
             _chunks.Add(new float[(chunkIndex == 0 ? 8 : ChunkRows) * _dimensions]);
         }
-        var chunk = _chunks[chunkIndex];
+        var chunk = Writable(chunkIndex);
         if (offset + _dimensions > chunk.Length)
         {
             Array.Resize(ref chunk, Math.Min(chunk.Length * 2, ChunkRows * _dimensions));

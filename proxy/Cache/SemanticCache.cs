@@ -140,10 +140,9 @@ public sealed class SemanticCache : IRewriteCache
         _hot.Invalidate(id);
         try
         {
-            // Without a vector (an unlocated call's entry) the entry is found only exactly, never by the index. While an
-            // index snapshot holds writers off, the answer does not wait: the follower applies the change after the hold.
-            if (questionVector is null) _index.RemoveUnlessHeld(id);
-            else _index.AddUnlessHeld(key.ScopeKey, id, questionVector);
+            // Without a vector (an unlocated call's entry) the entry is found only exactly, never by the index.
+            if (questionVector is null) _index.Remove(id);
+            else _index.Add(key.ScopeKey, id, questionVector);
         }
         catch (Exception e) when (e is not OutOfMemoryException)
         {

@@ -4,65 +4,55 @@ namespace RewriteProxy.Cache;
 
 /// <summary>
 /// The index's side of snapshots (<see cref="Snapshots.IndexSnapshotWriter"/>, <see cref="Snapshots.IndexSnapshotReader"/>):
-/// scopes handed out one at a time with writers held off, and a whole set of loaded scopes published at once.
+/// scopes handed out one at a time as frozen views, and a whole set of loaded scopes published at once.
 /// </summary>
 public sealed partial class VectorIndex
 {
-    /// <summary>True while a snapshot holds writers off (one scope's copy).</summary>
-    private volatile bool _heldForSnapshot;
-
     /// <summary>
-    /// <see cref="Add"/>, unless a snapshot holds writers off right now: then false at once, and the caller leaves the
-    /// entry to the index follower, which applies it from the store's change feed once the hold ends. For the request
-    /// path: a miss's answer never waits on a snapshot (at 1M entries a hold lasts seconds, docs/measurements/snapshots.md).
+    /// Hands <paramref name="frozen"/> each scope there is now, one at a time, as a view frozen at one moment: rows and
+    /// graph consistent with each other. Only taking the view and ending it hold off the index's writers (the ids are
+    /// copied; graph changes made meanwhile are applied at the end); writing the view out holds off nobody, and searches
+    /// never wait at all. Scopes made after the call began are left out (their entries' changes come after the
+    /// snapshot's sequence and are replayed).
     /// </summary>
-    public bool AddUnlessHeld(string scope, long id, float[] vector)
-    {
-        if (_heldForSnapshot) return false;
-        Add(scope, id, vector);
-        return true;
-    }
-
-    /// <summary><see cref="Remove"/>, unless a snapshot holds writers off right now (false; the follower applies it).</summary>
-    public bool RemoveUnlessHeld(long id)
-    {
-        if (_heldForSnapshot) return false;
-        Remove(id);
-        return true;
-    }
-    /// <summary>
-    /// Calls <paramref name="held"/> for each scope there is now, one scope at a time, each while holding the writer
-    /// lock: the scope's rows and graph cannot change meanwhile, so they are saved consistent with each other. Searches
-    /// take no writer lock and go on; writers wait for at most one scope. Scopes made after the call began are left out
-    /// (their entries' changes come after the snapshot's sequence and are replayed).
-    /// </summary>
-    /// <param name="held">Copies what must be consistent, as fast as it can: writers wait for it.</param>
-    /// <param name="released">Runs after each <paramref name="held"/>, once the lock is released: the slow rest.</param>
+    /// <param name="frozen">Writes the view out, while the scope goes on changing.</param>
+    /// <param name="thawed">Runs after each view has ended: what needs no view (appending a saved graph).</param>
     /// <returns>The longest time writers were held off.</returns>
-    internal TimeSpan ForEachScopeHeld(Action<ScopeIndex> held, Action released)
+    internal TimeSpan ForEachScopeFrozen(Action<ScopeIndex.Frozen> frozen, Action thawed)
     {
         var names = _scopes.Keys.ToArray();
         var longest = TimeSpan.Zero;
+        void Held(long start)
+        {
+            var held = Stopwatch.GetElapsedTime(start);
+            if (held > longest) longest = held;
+        }
         foreach (var name in names)
         {
+            ScopeIndex? scope;
+            ScopeIndex.Frozen view;
             lock (_writer)
             {
                 ObjectDisposedException.ThrowIf(_disposed, this);
                 var start = Stopwatch.GetTimestamp();
-                if (!_scopes.TryGetValue(name, out var scope)) continue;
-                _heldForSnapshot = true;
-                try
-                {
-                    held(scope);
-                }
-                finally
-                {
-                    _heldForSnapshot = false;
-                }
-                var hold = Stopwatch.GetElapsedTime(start);
-                if (hold > longest) longest = hold;
+                if (!_scopes.TryGetValue(name, out scope)) continue;
+                view = scope.Freeze();
+                Held(start);
             }
-            released();
+            try
+            {
+                frozen(view);
+            }
+            finally
+            {
+                lock (_writer)
+                {
+                    var start = Stopwatch.GetTimestamp();
+                    scope.Thaw();
+                    Held(start);
+                }
+            }
+            thawed();
         }
         return longest;
     }

@@ -99,12 +99,14 @@ public static class ProxyApp
         try
         {
             app.Services.GetRequiredService<SemanticCache>();
+            // The index snapshot is read while the store opens: at 1M entries both take seconds.
+            var snapshots = app.Services.GetRequiredService<IndexSnapshots>();
+            snapshots.BeginReading();
             var store = app.Services.GetRequiredService<IRewriteStore>();
             // Before listening, so a store that cannot be opened is one start-up error; start-up may wait on it.
             store.OpenAsync(StoreAccess.ReadWrite, CancellationToken.None).GetAwaiter().GetResult();
             app.Services.GetRequiredService<QuestionFinder>().LoadTemplatesAsync(CancellationToken.None).GetAwaiter().GetResult();
             // The index is loaded from its snapshot, or rebuilt, in the background: exact hits work meanwhile.
-            var snapshots = app.Services.GetRequiredService<IndexSnapshots>();
             app.Lifetime.ApplicationStarted.Register(() => _ = snapshots.StartFollowingAsync());
         }
         catch (EmbedderLoadException e)

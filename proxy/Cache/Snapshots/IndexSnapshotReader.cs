@@ -110,21 +110,27 @@ public sealed unsafe class IndexSnapshotReader : IDisposable
             throw new SnapshotRejectedException(SnapshotRejection.BadChecksum, "its SHA-256 does not match its contents");
     }
 
-    /// <summary>Compares where the snapshot came from with what this process runs.</summary>
-    /// <exception cref="SnapshotRejectedException">another model, dimensions, store, or graph library or settings.</exception>
-    public void Check(string modelId, int dimensions, string storeId, HnswSettings hnsw)
+    /// <summary>Compares how the snapshot was made with what this process runs (the store is checked by <see cref="CheckStore"/>).</summary>
+    /// <exception cref="SnapshotRejectedException">another model, dimensions, or graph library or settings.</exception>
+    public void Check(string modelId, int dimensions, HnswSettings hnsw)
     {
         var h = Header;
         if (h.ModelId != modelId)
             throw new SnapshotRejectedException(SnapshotRejection.OtherModel, $"made with embedding model {h.ModelId}, this process runs {modelId}");
         if (h.Dimensions != dimensions)
             throw new SnapshotRejectedException(SnapshotRejection.OtherDimensions, $"vectors of {h.Dimensions} dimensions, this process makes {dimensions}");
-        if (h.StoreId != storeId)
-            throw new SnapshotRejectedException(SnapshotRejection.OtherStore, $"made from store {h.StoreId}, this store is {storeId}");
         if (h.GraphLibrary != ScopeGraph.LibraryVersion || h.Connectivity != hnsw.Connectivity || h.Quantization != hnsw.Quantization)
             throw new SnapshotRejectedException(SnapshotRejection.OtherGraphs,
                 $"graphs of USearch {h.GraphLibrary} (M {h.Connectivity}, {h.Quantization}), this process runs {ScopeGraph.LibraryVersion} " +
                 $"(M {hnsw.Connectivity}, {hnsw.Quantization})");
+    }
+
+    /// <summary>Checks that the snapshot was made from this store (a store made anew has another id: its ids name other entries).</summary>
+    /// <exception cref="SnapshotRejectedException">another store.</exception>
+    public static void CheckStore(IndexSnapshotHeader header, string storeId)
+    {
+        if (header.StoreId != storeId)
+            throw new SnapshotRejectedException(SnapshotRejection.OtherStore, $"made from store {header.StoreId}, this store is {storeId}");
     }
 
     /// <summary>The scopes, rows and graphs, built off to the side; the caller publishes them (<c>VectorIndex.Restore</c>) or disposes them.</summary>

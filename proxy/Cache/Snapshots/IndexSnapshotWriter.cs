@@ -12,8 +12,8 @@ namespace RewriteProxy.Cache.Snapshots;
 public sealed record SnapshotOrigin(string ModelId, string StoreId, long Sequence);
 
 /// <summary>
-/// What a save wrote, and how long it took. <c>LongestHold</c> is the longest time index writers were held off (one
-/// scope's rows and graph); searches never wait for a save.
+/// What a save wrote, and how long it took. <c>LongestHold</c> is the longest time index writers were held off (to
+/// freeze a scope's view, or to end it); searches never wait for a save.
 /// </summary>
 public sealed record SnapshotSaved(long Bytes, long Entries, int Scopes, int Graphs, TimeSpan Elapsed, TimeSpan LongestHold);
 
@@ -63,22 +63,21 @@ public static class IndexSnapshotWriter
             using (var output = CreatePrivate(temporary, FileAccess.ReadWrite))
             {
                 WriteHeader(output, index, origin);
-                longest = index.ForEachScopeHeld(held: scope =>
+                longest = index.ForEachScopeFrozen(frozen: view =>
                 {
-                    // Writers wait while the scope's rows (into the page cache: about a memory copy) and its graph
-                    // (beside the file) are written, so the two are consistent with each other.
-                    WriteString(output, scope.Name);
-                    WriteInt32(output, scope.Count);
-                    scope.WriteRows(output);
-                    entries += scope.Count;
+                    // The view stays as it was frozen while it is written; writers and searches go on meanwhile.
+                    WriteString(output, view.Name);
+                    WriteInt32(output, view.Count);
+                    view.WriteRows(output);
+                    entries += view.Count;
                     scopes++;
-                    if (scope.Graph is { } graph)
+                    if (view.Graph is { } graph)
                     {
                         using (CreatePrivate(graphFile, FileAccess.Write)) { }
                         graph.Save(graphFile);
                         graphSaved = true;
                     }
-                }, released: () =>
+                }, thawed: () =>
                 {
                     output.WriteByte(graphSaved ? (byte)1 : (byte)0);
                     if (!graphSaved) return;

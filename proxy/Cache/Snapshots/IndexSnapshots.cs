@@ -41,8 +41,22 @@ public sealed class IndexSnapshots(IRewriteStore store, VectorIndex index, Index
         if (Enabled) _loop = Task.Run(SaveEveryIntervalAsync);
     }
 
-    /// <summary>The snapshot's change sequence once its scopes are in the index; null when there is none to trust.</summary>
-    async Task<long?> LoadAsync()
+    /// <summary>A snapshot read and checked as far as it can be without the store; its scopes not yet published.</summary>
+    sealed record Read(IndexSnapshotHeader Header, List<ScopeIndex> Scopes, TimeSpan Took);
+
+    Task<Read?>? _reading;
+
+    /// <summary>
+    /// Starts reading the snapshot while the store opens (call it before): both take seconds at a million entries,
+    /// mostly waiting on the disk, so the restart costs the longer of the two, not their sum. Everything that needs no
+    /// store is checked here: the file, the model, the vector width, the graphs.
+    /// </summary>
+    public void BeginReading()
+    {
+        if (Enabled && _reading is null) _reading = Task.Run(ReadChecked);
+    }
+
+    Read? ReadChecked()
     {
         if (!File.Exists(SnapshotPath))
         {
@@ -53,30 +67,46 @@ public sealed class IndexSnapshots(IRewriteStore store, VectorIndex index, Index
         try
         {
             using var reader = IndexSnapshotReader.Open(SnapshotPath);
-            reader.Check(modelId, index.Dimensions, store.StoreId, index.Hnsw);
-            var header = reader.Header;
-            // Asked before the scopes are read: a snapshot the store cannot bring up to date is not worth reading.
+            reader.Check(modelId, index.Dimensions, index.Hnsw);
+            return new Read(reader.Header, reader.ReadScopes(index.Hnsw), watch.Elapsed);
+        }
+        catch (Exception e) when (e is SnapshotRejectedException or IOException or UnauthorizedAccessException)
+        {
+            NotUsed(e);
+            return null;
+        }
+    }
+
+    /// <summary>The snapshot's change sequence once its scopes are in the index; null when there is none to trust.</summary>
+    async Task<long?> LoadAsync()
+    {
+        BeginReading();
+        if (await _reading! is not { } read) return null;
+        var watch = Stopwatch.StartNew();
+        var header = read.Header;
+        try
+        {
+            IndexSnapshotReader.CheckStore(header, store.StoreId);
             if (await store.ChangesAfterAsync(header.Sequence, 1, _stop.Token) is null)
                 throw new SnapshotRejectedException(SnapshotRejection.ChangesGone,
                     $"the store no longer holds the changes after {header.Sequence} (pruned, or an older copy of the store)");
-            index.Restore(reader.ReadScopes(index.Hnsw));
-            log.LogInformation("cache: index loaded from snapshot {Path} in {Ms} ms: {Entries} entries in {Scopes} scopes ({Graphs} graphs), " +
-                "saved {SavedAt:u} at change {Sequence}; catching up from the store", SnapshotPath, watch.ElapsedMilliseconds, header.Entries,
-                header.Scopes, header.Graphs, header.SavedAt, header.Sequence);
-            return header.Sequence;
+            index.Restore(read.Scopes);
         }
-        catch (SnapshotRejectedException e)
+        catch (Exception e) when (e is SnapshotRejectedException or StoreException)
         {
-            log.LogWarning("cache: index snapshot {Path} not used ({Reason}: {Detail}); rebuilding the index from the store", SnapshotPath,
-                LabelValue.Of(e.Reason), e.Message);
+            foreach (var scope in read.Scopes) scope.Dispose();
+            NotUsed(e);
+            return null;
         }
-        catch (Exception e) when (e is IOException or UnauthorizedAccessException or StoreException)
-        {
-            log.LogWarning("cache: index snapshot {Path} not used (unreadable: {Detail}); rebuilding the index from the store", SnapshotPath,
-                e.Message);
-        }
-        return null;
+        log.LogInformation("cache: index loaded from snapshot {Path} in {Ms} ms (read while the store opened) + {PublishMs} ms: {Entries} " +
+            "entries in {Scopes} scopes ({Graphs} graphs), saved {SavedAt:u} at change {Sequence}; catching up from the store", SnapshotPath,
+            (long)read.Took.TotalMilliseconds, watch.ElapsedMilliseconds, header.Entries, header.Scopes, header.Graphs, header.SavedAt,
+            header.Sequence);
+        return header.Sequence;
     }
+
+    void NotUsed(Exception e) => log.LogWarning("cache: index snapshot {Path} not used ({Reason}: {Detail}); rebuilding the index from the store",
+        SnapshotPath, e is SnapshotRejectedException r ? LabelValue.Of(r.Reason) : "unreadable", e.Message);
 
     async Task SaveEveryIntervalAsync()
     {

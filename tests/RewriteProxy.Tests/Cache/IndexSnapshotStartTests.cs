@@ -27,10 +27,11 @@ public sealed class IndexSnapshotStartTests : UpstreamAndProxy
 
     string SnapshotPath => _storePath + ".index";
 
-    Task<TestProxy> StartAsync(LogCapture? logs = null, bool snapshots = true) => StartProxyAsync(new Dictionary<string, string?>
+    Task<TestProxy> StartAsync(LogCapture? logs = null, bool snapshots = true, string? interval = null) => StartProxyAsync(new Dictionary<string, string?>
     {
         ["Store:Path"] = _storePath,
         ["Store:IndexSnapshotPath"] = snapshots ? null : "",
+        ["Store:IndexSnapshotInterval"] = interval,
         ["Lanes:draft:MaxDrift"] = "0.9",
         ["Logging:LogLevel:cache"] = "Information",
     }, logs is null ? null : logs.Register);
@@ -82,6 +83,31 @@ public sealed class IndexSnapshotStartTests : UpstreamAndProxy
         Assert.True(logs.Contains("index loaded from snapshot"), string.Join("\n", logs.Lines));
         Assert.Equal("hit-semantic", await ProbeAsync(proxy, OtherParaphrase));
         Assert.Equal("probe-miss", await ProbeAsync(proxy, Paraphrase));
+    }
+
+    [Fact]
+    public async Task The_index_is_saved_every_interval_when_it_changed_and_only_then()
+    {
+        await SaveOneEntryAsync();
+        var logs = new LogCapture();
+        await using var proxy = await StartAsync(logs, interval: "1s");
+        int Saves() => logs.Lines.Count(l => l.Contains("index snapshot saved (interval)", StringComparison.Ordinal));
+
+        Assert.Equal("miss", (await proxy.AskAsync("draft", "Where can I park my bike at the library?")).Cache);
+        await WaitForAsync(() => Saves() == 1, TimeSpan.FromSeconds(10));
+        await Task.Delay(TimeSpan.FromSeconds(2.5)); // two more intervals, nothing changed
+        var unchanged = Saves();
+        Assert.Equal("miss", (await proxy.AskAsync("draft", Other)).Cache);
+        await WaitForAsync(() => Saves() == 2, TimeSpan.FromSeconds(10));
+
+        Assert.Equal(1, unchanged);
+        Assert.Equal(2, Saves());
+    }
+
+    static async Task WaitForAsync(Func<bool> condition, TimeSpan limit)
+    {
+        var deadline = DateTime.UtcNow + limit;
+        while (!condition() && DateTime.UtcNow < deadline) await Task.Delay(50);
     }
 
     [Fact]

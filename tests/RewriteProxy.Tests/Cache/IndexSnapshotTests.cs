@@ -63,7 +63,8 @@ public sealed class IndexSnapshotTests : IDisposable
     {
         var index = new VectorIndex(Dims, switchSize, hnsw ?? Narrow);
         using var reader = IndexSnapshotReader.Open(path);
-        reader.Check(Model, Dims, Store, index.Hnsw);
+        reader.Check(Model, Dims, index.Hnsw);
+        IndexSnapshotReader.CheckStore(reader.Header, Store);
         index.Restore(reader.ReadScopes(index.Hnsw));
         return index;
     }
@@ -116,34 +117,115 @@ public sealed class IndexSnapshotTests : IDisposable
     }
 
     [Fact]
-    public async Task While_a_snapshot_holds_a_scope_searches_go_on_and_the_request_paths_writes_do_not_wait()
+    public async Task While_a_scope_is_written_out_searches_and_writes_go_on_and_the_view_stays_as_it_was_frozen()
     {
         var (original, rows) = Original();
         using var _ = original;
-        using var holding = new ManualResetEventSlim();
+        using var frozen = new ManualResetEventSlim();
         using var release = new ManualResetEventSlim();
-        var heldScope = "";
-        var save = Task.Run(() => original.ForEachScopeHeld(held: scope =>
+        var written = new Dictionary<string, byte[]>();
+        var save = Task.Run(() => original.ForEachScopeFrozen(frozen: view =>
         {
-            heldScope = scope.Name;
-            holding.Set();
-            release.Wait();
-        }, released: () => { }));
-        holding.Wait();
+            if (view.Name == Big)
+            {
+                frozen.Set();
+                release.Wait();
+            }
+            using var bytes = new MemoryStream();
+            view.WriteRows(bytes);
+            written[view.Name] = bytes.ToArray();
+        }, thawed: () => { }));
+        frozen.Wait();
+        var countAtFreeze = original.CountOf(Big);
+        var added = VectorIndexTestData.Unit(new Random(46), Dims);
 
-        // The very scope being saved is searched meanwhile.
-        var found = original.Search(heldScope, rows[heldScope][10], 1, 0.99f);
-        var addedAtOnce = original.AddUnlessHeld(Big, 77_777, rows[Big][10]);
-        var blockedAdd = Task.Run(() => original.Add(Small, 88_888, rows[Small][0]));
-        var waited = await Task.WhenAny(blockedAdd, Task.Delay(300)) != blockedAdd;
+        // Big is frozen now: it is searched, grown and shrunk, and none of it waits for the view.
+        var found = original.Search(Big, rows[Big][10], 1, 0.99f);
+        var writes = Task.Run(() =>
+        {
+            original.Add(Big, 99_999, added);
+            original.Remove(11);
+        });
+        var writesWaited = await Task.WhenAny(writes, Task.Delay(TimeSpan.FromSeconds(5))) != writes;
         release.Set();
         await save;
-        await blockedAdd;
 
-        Assert.Single(found);
-        Assert.False(addedAtOnce);
-        Assert.True(waited, "an ordinary writer did not wait for the hold: the hold held nothing");
-        Assert.True(original.AddUnlessHeld(Big, 77_777, rows[Big][10]));
+        Assert.Equal(11, found.Single().Id);
+        Assert.False(writesWaited, "a writer waited for a frozen scope");
+        // The view: the rows as they were frozen (11 there, 99 999 not), each id with its own vector, though the
+        // removal moved the last row into 11's place and the addition wrote where that last row had been.
+        var (ids, vectors) = Decode(written[Big], countAtFreeze);
+        Assert.Contains(11L, ids);
+        Assert.DoesNotContain(99_999L, ids);
+        var byId = Initial(rows);
+        for (var i = 0; i < ids.Length; i++) Assert.Equal(byId[ids[i]].Vector, vectors[i]);
+        // Thawed: the graph took in the changes queued meanwhile.
+        Assert.True(original.UsesGraph(Big));
+        Assert.Equal(99_999, original.Search(Big, added, 1, 0.99f).Single().Id);
+        Assert.DoesNotContain(original.Search(Big, rows[Big][10], 4, -1f), r => r.Id == 11);
+    }
+
+    /// <summary>A frozen view's rows as WriteRows lays them out: the ids, then the vectors.</summary>
+    static (long[] Ids, float[][] Vectors) Decode(byte[] rows, int count)
+    {
+        var ids = System.Runtime.InteropServices.MemoryMarshal.Cast<byte, long>(rows.AsSpan(0, count * 8)).ToArray();
+        var floats = System.Runtime.InteropServices.MemoryMarshal.Cast<byte, float>(rows.AsSpan(count * 8)).ToArray();
+        return (ids, Enumerable.Range(0, count).Select(i => floats.AsSpan(i * Dims, Dims).ToArray()).ToArray());
+    }
+
+    /// <summary>The entries of <see cref="Original"/> by id (ids 1, 2, ... in the order they were added).</summary>
+    static Dictionary<long, (string Scope, float[] Vector)> Initial(Dictionary<string, float[][]> rows) =>
+        rows.SelectMany(r => r.Value.Select(v => (Scope: r.Key, Vector: v))).Select((e, i) => (Id: i + 1L, e)).ToDictionary(x => x.Id, x => x.e);
+
+    [Fact]
+    public async Task A_snapshot_saved_under_writes_plus_the_changes_after_its_sequence_is_the_index_as_it_ends()
+    {
+        var (original, rows) = Original();
+        using var _ = original;
+        // The change log a follower would replay: every write with its sequence, made while the snapshot is saved.
+        var log = new List<(long Sequence, string Scope, long Id, float[]? Vector)>();
+        long sequence = 0;
+        var random = new Random(47);
+        var scopes = rows.Keys.ToArray();
+        using var stop = new CancellationTokenSource();
+        var writer = Task.Run(() =>
+        {
+            long next = 50_000;
+            while (!stop.IsCancellationRequested)
+            {
+                var scope = scopes[random.Next(scopes.Length)];
+                (string, long, float[]?) change = random.Next(3) == 0
+                    ? (scope, 1 + random.Next(1_930), null)
+                    : (scope, next++, VectorIndexTestData.Unit(random, Dims));
+                lock (log) log.Add((Interlocked.Increment(ref sequence), change.Item1, change.Item2, change.Item3));
+                if (change.Item3 is { } v) original.Add(change.Item1, change.Item2, v);
+                else original.Remove(change.Item2);
+            }
+        });
+        await Task.Delay(50);
+        // Read before saving, as IndexSnapshots reads the follower's sequence: every scope is saved as of it or later.
+        var origin = Interlocked.Read(ref sequence);
+
+        IndexSnapshotWriter.Save(original, new SnapshotOrigin(Model, Store, origin), SnapshotPath);
+        await Task.Delay(50);
+        await stop.CancelAsync();
+        await writer;
+
+        using var reloaded = Reload(SnapshotPath, new HnswSettings());
+        foreach (var (_, scope, id, vector) in log.Where(c => c.Sequence > origin))
+        {
+            if (vector is null) reloaded.Remove(id);
+            else reloaded.Add(scope, id, vector);
+        }
+        Assert.True(log.Count(c => c.Sequence > origin) > 0, "no write fell after the snapshot's sequence: nothing was replayed");
+        Assert.Equal(original.Count, reloaded.Count);
+        foreach (var scope in scopes) Assert.Equal(original.CountOf(scope), reloaded.CountOf(scope));
+        // Every entry written during the save is where its last change left it: found by its own vector, or gone.
+        foreach (var (_, scope, id, vector) in log.Where(c => c.Vector is not null))
+            Assert.Equal([id], reloaded.Search(scope, vector!, 1, 0.999f).Select(r => r.Id));
+        var initial = Initial(rows);
+        foreach (var id in log.Where(c => c.Vector is null).Select(c => c.Id).Distinct())
+            Assert.DoesNotContain(reloaded.Search(initial[id].Scope, initial[id].Vector, 4, -1f), r => r.Id == id);
     }
 
     [Fact]
@@ -207,11 +289,12 @@ public sealed class IndexSnapshotTests : IDisposable
         IndexSnapshotWriter.Save(original, new SnapshotOrigin(Model, Store, 1), SnapshotPath);
         using var reader = IndexSnapshotReader.Open(SnapshotPath);
 
-        var refused = Assert.Throws<SnapshotRejectedException>(() => reader.Check(
-            what == "model" ? "another-model" : Model,
-            what == "dimensions" ? 768 : Dims,
-            what == "store" ? "store-0002" : Store,
-            what == "graphs" ? Narrow with { Connectivity = 32 } : Narrow));
+        var refused = Assert.Throws<SnapshotRejectedException>(() =>
+        {
+            reader.Check(what == "model" ? "another-model" : Model, what == "dimensions" ? 768 : Dims,
+                what == "graphs" ? Narrow with { Connectivity = 32 } : Narrow);
+            IndexSnapshotReader.CheckStore(reader.Header, what == "store" ? "store-0002" : Store);
+        });
 
         Assert.Equal(reason, refused.Reason);
     }

@@ -72,7 +72,9 @@ public sealed class PostgresFeedTests(PostgresCluster cluster, ITestOutputHelper
         // The hazard the changes lock exists for (PostgreSQL docs, "Sequence Manipulation Functions": nextval is never
         // rolled back and does not wait for other transactions, so numbers are taken in call order, not commit order).
         var db = await cluster.CreateDatabaseAsync();
-        await using var store = await OpenAsync(db);
+        // The store's add waits on the lock for as long as this test holds it: on a loaded machine that can pass the
+        // 2 s default command timeout, which would fail the add rather than show the ordering.
+        await using var store = await OpenAsync(db + ";Command Timeout=30");
         await using var early = await OpenConnectionAsync(db);
         await using var late = await OpenConnectionAsync(db);
         await using var earlyTx = await early.BeginTransactionAsync();
@@ -94,7 +96,9 @@ public sealed class PostgresFeedTests(PostgresCluster cluster, ITestOutputHelper
     public async Task A_writer_takes_its_sequence_only_after_an_earlier_writer_commits()
     {
         var db = await cluster.CreateDatabaseAsync();
-        await using var store = await OpenAsync(db);
+        // The store's add waits on the lock for as long as this test holds it: on a loaded machine that can pass the
+        // 2 s default command timeout, which would fail the add rather than show the ordering.
+        await using var store = await OpenAsync(db + ";Command Timeout=30");
         await using var early = await OpenConnectionAsync(db);
         await using var earlyTx = await early.BeginTransactionAsync();
         await using (var lockCommand = new NpgsqlCommand($"SELECT pg_advisory_xact_lock({PostgresLocks.Changes})", early, earlyTx))

@@ -46,6 +46,15 @@ internal sealed partial class ScopeIndex : IDisposable
         finally { _gate.ExitReadLock(); }
     }
 
+    /// <summary>True when <paramref name="id"/> is here with exactly <paramref name="vector"/> (writer only: rows change only
+    /// under the writer, so it reads them without the lock).</summary>
+    public bool Holds(long id, ReadOnlySpan<float> vector)
+    {
+        if (!_rowOf.TryGetValue(id, out var row)) return false;
+        var offset = (row % ChunkRows) * _dimensions;
+        return _chunks[row / ChunkRows].AsSpan(offset, _dimensions).SequenceEqual(vector);
+    }
+
     /// <summary>Appends a row (writer only). The graph, if any, is updated after the row is visible.</summary>
     public void Add(long id, ReadOnlySpan<float> vector)
     {

@@ -54,7 +54,11 @@ public sealed partial class VectorIndex : IDisposable
     /// <summary>True when the scope is currently searched through a graph (for tests and metrics).</summary>
     internal bool UsesGraph(string scope) => _scopes.TryGetValue(scope, out var s) && s.HasGraph;
 
-    /// <summary>Adds an entry's question vector; an id already present (in any scope) is replaced.</summary>
+    /// <summary>
+    /// Adds an entry's question vector; an id already present (in any scope) is replaced. The same id with the same
+    /// vector in the same scope is left as it is: a process indexes its own entry at once and the change follower
+    /// applies the same change again, which would otherwise remove and re-insert it (in a graph scope, twice the graph work).
+    /// </summary>
     public void Add(string scope, long id, float[] vector)
     {
         ArgumentNullException.ThrowIfNull(scope);
@@ -62,6 +66,7 @@ public sealed partial class VectorIndex : IDisposable
         lock (_writer)
         {
             ObjectDisposedException.ThrowIf(_disposed, this);
+            if (_scopeOf.TryGetValue(id, out var current) && current.Name == scope && current.Holds(id, vector)) return;
             RemoveLocked(id);
             var target = _scopes.GetOrAdd(scope, _ => new ScopeIndex(scope, Dimensions));
             target.Add(id, vector);

@@ -190,6 +190,23 @@ stop_tracked() { # pid: ends it and forgets it, so the exit trap never signals a
 
 stop_proxy() { stop_tracked "$proxy_pid"; proxy_pid=""; }
 
+b_pid=""; b_port=$((proxy_port + 10))
+want_b() { [ -n "${BENCH_B_ARGS:-}${BENCH_B_ENV:-}${BENCH_B_BIN:-}" ]; }
+start_b() { # name upstream-port pin-prefix-words... [-- extra serve args...]: starts "proxyB" (BENCH_B_*) for an A/B in one run
+  local name=$1 up=$2; shift 2
+  local pin=() extra=() b_args b_env
+  while [ $# -gt 0 ] && [ "$1" != "--" ]; do pin+=("$1"); shift; done
+  [ $# -gt 0 ] && { shift; extra=("$@"); }
+  read -r -a b_args <<< "${BENCH_B_ARGS:-}"; read -r -a b_env <<< "${BENCH_B_ENV:-}"
+  mkdir -p "$work/$name-b"
+  env "${b_env[@]}" "${pin[@]}" "${BENCH_B_BIN:-$proxy_bin}" serve --urls "http://127.0.0.1:$b_port" \
+    "--Upstream:BaseUrl=http://127.0.0.1:$up/v1" "--Store:Path=$work/$name-b/cache.db" "${extra[@]}" "${b_args[@]}" \
+    >"$work/$name-b/proxy.log" 2>&1 &
+  b_pid=$!; pids+=($b_pid)
+  wait_http "http://127.0.0.1:$b_port/readyz" 600
+  echo "  proxyB: env '${BENCH_B_ENV:-}' args '${BENCH_B_ARGS:-}' binary ${BENCH_B_BIN:-(same)}; VmRSS after start $(rss_mb "$b_pid") MB"
+}
+
 lane_call() { # body -> prints X-Rewrite-Cache
   curl -sS -o /dev/null -D - -H 'Content-Type: application/json' -H 'Authorization: Bearer sk-bench-tenant' \
     --data-binary "$1" "http://127.0.0.1:$proxy_port/lane/draft/v1/chat/completions" \
@@ -386,17 +403,9 @@ run_fanout() { # rounds
   forwarder_pid=$!; pids+=($forwarder_pid)
   wait_http "http://127.0.0.1:$forwarder_port/v1/models" 600
   local rss_start; rss_start=$(rss_mb "$proxy_pid")
-  local b_target=() b_pid=""
-  if [ -n "${BENCH_B_ARGS:-}${BENCH_B_ENV:-}${BENCH_B_BIN:-}" ]; then
-    local b_args b_env b_port=$((proxy_port + 10))
-    read -r -a b_args <<< "${BENCH_B_ARGS:-}"; read -r -a b_env <<< "${BENCH_B_ENV:-}"
-    mkdir -p "$work/fanout-b"
-    env "${b_env[@]}" "${fan_sut[@]}" "${BENCH_B_BIN:-$proxy_bin}" serve --urls "http://127.0.0.1:$b_port" \
-      "--Upstream:BaseUrl=http://127.0.0.1:$sse_port/v1" "--Store:Path=$work/fanout-b/cache.db" "${b_args[@]}" \
-      >"$work/fanout-b/proxy.log" 2>&1 &
-    b_pid=$!; pids+=($b_pid)
-    wait_http "http://127.0.0.1:$b_port/readyz" 600
-    echo "  proxyB: env '${BENCH_B_ENV:-}' args '${BENCH_B_ARGS:-}' binary ${BENCH_B_BIN:-(same)}; VmRSS after start $(rss_mb "$b_pid") MB"
+  local b_target=(); b_pid=""
+  if want_b; then
+    start_b fanout "$sse_port" "${fan_sut[@]}"
     b_target=(--target "proxyB=http://127.0.0.1:$b_port/v1/chat/completions,pid=$b_pid")
   fi
   local json="$work/fanout.json" before after
@@ -448,17 +457,9 @@ run_hits() {
   # CacheSize=0: each semantic hit runs the model, as a new paraphrase does (otherwise its vector comes from memory).
   start_proxy hits --Embedding:CacheSize=0
   proxy_pin=()
-  local json="$work/hits.json" b_url=() b_pid=""
-  if [ -n "${BENCH_B_ARGS:-}${BENCH_B_ENV:-}${BENCH_B_BIN:-}" ]; then
-    local b_args b_env b_port=$((proxy_port + 10))
-    read -r -a b_args <<< "${BENCH_B_ARGS:-}"; read -r -a b_env <<< "${BENCH_B_ENV:-}"
-    mkdir -p "$work/hits-b"
-    env "${b_env[@]}" "${BENCH_B_BIN:-$proxy_bin}" serve --urls "http://127.0.0.1:$b_port" \
-      "--Upstream:BaseUrl=http://127.0.0.1:$upstream_port/v1" "--Store:Path=$work/hits-b/cache.db" --Embedding:CacheSize=0 \
-      "${b_args[@]}" >"$work/hits-b/proxy.log" 2>&1 &
-    b_pid=$!; pids+=($b_pid)
-    wait_http "http://127.0.0.1:$b_port/readyz" 600
-    echo "  proxyB: env '${BENCH_B_ENV:-}' args '${BENCH_B_ARGS:-}' binary ${BENCH_B_BIN:-(same)}"
+  local json="$work/hits.json" b_url=(); b_pid=""
+  if want_b; then
+    start_b hits "$upstream_port" env -- --Embedding:CacheSize=0
     b_url=(--b-url "http://127.0.0.1:$b_port")
   fi
   dotnet "$hits_dll" hit-latency --url "http://127.0.0.1:$proxy_port" "${b_url[@]}" --calls "${BENCH_HIT_CALLS:-300}" \
@@ -521,18 +522,8 @@ run_passthrough() {
   start_nginx_proxy "$upstream_port" 1
   start_proxy passthrough
   start_forwarder
-  local b_pid="" b_port=$((proxy_port + 10))
-  if [ -n "${BENCH_B_ARGS:-}${BENCH_B_ENV:-}${BENCH_B_BIN:-}" ]; then
-    local b_args b_env
-    read -r -a b_args <<< "${BENCH_B_ARGS:-}"; read -r -a b_env <<< "${BENCH_B_ENV:-}"
-    mkdir -p "$work/passthrough-b"
-    env "${b_env[@]}" "${on_sut[@]}" "${BENCH_B_BIN:-$proxy_bin}" serve --urls "http://127.0.0.1:$b_port" \
-      "--Upstream:BaseUrl=http://127.0.0.1:$upstream_port/v1" "--Store:Path=$work/passthrough-b/cache.db" "${b_args[@]}" \
-      >"$work/passthrough-b/proxy.log" 2>&1 &
-    b_pid=$!; pids+=($b_pid)
-    wait_http "http://127.0.0.1:$b_port/readyz" 600
-    echo "  proxyB: env '${BENCH_B_ENV:-}' args '${BENCH_B_ARGS:-}' binary ${BENCH_B_BIN:-(same)}"
-  fi
+  b_pid=""
+  want_b && start_b passthrough "$upstream_port" "${on_sut[@]}"
   local r
   for r in $(seq 1 "$rounds"); do
     measure "direct-r$r" "http://127.0.0.1:$upstream_port/v1/chat/completions"  "$json_body"

@@ -1,3 +1,4 @@
+using System.Runtime.CompilerServices;
 using RewriteProxy.Embedding;
 using RewriteProxy.Store;
 using RewriteProxy.Telemetry;
@@ -22,6 +23,10 @@ public sealed class SemanticCache : IRewriteCache
     readonly LaneTally _tally;
     readonly StoreOptions _options;
     readonly MissClaims _claims;
+    // A stored question's reading (anchors, words, frames: ~60 µs), made once per entry object rather than on every
+    // lookup that meets it; HotEntries keeps the recently served entry objects, and a reading goes with its entry.
+    readonly ConditionalWeakTable<StoredEntry, HitQuestion> _readings = new();
+    readonly ConditionalWeakTable<StoredEntry, HitQuestion>.CreateValueCallback _read;
 
     public SemanticCache(IRewriteStore store, VectorIndex index, HotEntries hot, IEmbedder embedder, AnchorGuard guard, LaneTally tally,
         StoreOptions options)
@@ -33,6 +38,7 @@ public sealed class SemanticCache : IRewriteCache
         _hot = hot;
         _embedder = embedder;
         _decision = new HitDecision(guard);
+        _read = entry => _decision.Read(entry.Question);
         _tally = tally;
         _options = options;
         _claims = new MissClaims(store, FindExactAsync);
@@ -78,7 +84,7 @@ public sealed class SemanticCache : IRewriteCache
         {
             // The index searched this scope only; an entry of another scope under the id is one the index has not caught up on.
             if (await CandidateAsync(id, cancel) is not { } entry || entry.ScopeKey != key.ScopeKey) continue;
-            var verdict = _decision.Decide(asked, _decision.Read(entry.Question), similarity);
+            var verdict = _decision.Decide(asked, _readings.GetValue(entry, _read), similarity);
             if (verdict.Agree) return new LookupResult(LookupKind.HitSemantic, entry, similarity, vector);
 
             var reason = verdict.Reason!.Value;

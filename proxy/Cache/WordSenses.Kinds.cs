@@ -6,10 +6,7 @@ internal sealed partial class WordSenses
     /// <summary>Senses of the lemma over all parts of speech; 0 when WordNet does not know it (a name, a casual word, a typo).</summary>
     public int SenseCount(string lemma)
     {
-        if (!_senses.TryGetValue(lemma, out var groups)) return 0;
-        var n = 0;
-        foreach (var g in groups) n += g.Length;
-        return n;
+        return _senses.TryGetValue(lemma, out var groups) ? groups.Count : 0;
     }
 
     /// <summary>The lemma is mostly a noun: it has noun senses and at least as many as verb senses ("cat", "fee"; not "pay").</summary>
@@ -42,16 +39,24 @@ internal sealed partial class WordSenses
         {
             var upA = Ancestors(x[p]);
             var upB = Ancestors(y[p]);
-            if (y[p].Take(Depth).Any(upA.Contains) || x[p].Take(Depth).Any(upB.Contains)) return true;
+            if (AnyOf(y[p], upA) || AnyOf(x[p], upB)) return true;
         }
         return false;
     }
 
+    /// <summary>One of the first <see cref="Depth"/> senses is in <paramref name="set"/>.</summary>
+    bool AnyOf(ReadOnlySpan<int> senses, HashSet<int> set)
+    {
+        foreach (var s in senses[..Math.Min(Depth, senses.Length)])
+            if (set.Contains(s)) return true;
+        return false;
+    }
+
     /// <summary>The first senses themselves and their hypernyms up to two steps.</summary>
-    HashSet<int> Ancestors(int[] senses)
+    HashSet<int> Ancestors(ReadOnlySpan<int> senses)
     {
         var found = new HashSet<int>();
-        var level = senses.Take(Depth).ToList();
+        var level = senses[..Math.Min(Depth, senses.Length)].ToArray().ToList();
         for (var step = 0; step <= 2 && level.Count > 0; step++)
         {
             var next = new List<int>();

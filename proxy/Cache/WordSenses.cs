@@ -24,12 +24,12 @@ internal sealed partial class WordSenses
     /// </summary>
     public const int DefaultDepth = 3;
 
-    readonly FrozenDictionary<string, int[][]> _senses;
+    readonly FrozenDictionary<string, SenseGroups> _senses;
     readonly FrozenDictionary<int, int[]> _hypernyms;
     readonly FrozenDictionary<string, string[]> _derived;
     readonly FrozenDictionary<string, string[]> _irregular;
 
-    WordSenses(FrozenDictionary<string, int[][]> senses, FrozenDictionary<int, int[]> hypernyms, FrozenDictionary<string, string[]> derived,
+    WordSenses(FrozenDictionary<string, SenseGroups> senses, FrozenDictionary<int, int[]> hypernyms, FrozenDictionary<string, string[]> derived,
         FrozenDictionary<string, string[]> irregular)
     {
         _senses = senses;
@@ -62,7 +62,7 @@ internal sealed partial class WordSenses
 
     public static WordSenses Parse(TextReader reader)
     {
-        var senses = new Dictionary<string, int[][]>(StringComparer.Ordinal);
+        var senses = new Dictionary<string, SenseGroups>(StringComparer.Ordinal);
         var hypernyms = new Dictionary<int, int[]>();
         var derived = new Dictionary<string, List<string>>(StringComparer.Ordinal);
         var irregular = new Dictionary<string, List<string>>(StringComparer.Ordinal);
@@ -74,8 +74,8 @@ internal sealed partial class WordSenses
             switch (fields[0])
             {
                 case "w":
-                    senses[fields[1]] = fields[2].Split(';')
-                        .Select(g => g.Length == 0 ? [] : g.Split(' ').Select(Base36).ToArray()).ToArray();
+                    senses[fields[1]] = SenseGroups.Of(fields[2].Split(';')
+                        .Select(g => g.Length == 0 ? [] : g.Split(' ').Select(Base36).ToArray()).ToArray());
                     break;
                 case "h":
                     hypernyms[Base36(fields[1])] = fields[2].Split(' ').Select(Base36).ToArray();
@@ -172,13 +172,13 @@ internal sealed partial class WordSenses
             var ys = y[p];
             for (var r = 0; r < xs.Length && r < OtherDepth; r++)
             {
-                var at = Array.IndexOf(ys, xs[r]);
+                var at = ys.IndexOf(xs[r]);
                 // Shared: one of the two ranks within Depth, the other within OtherDepth.
                 if (at >= 0 && at < OtherDepth && (r < Depth || at < Depth)) return true;
             }
             if (!WithHypernyms) continue;
-            var xd = xs.AsSpan(0, Math.Min(Depth, xs.Length));
-            var yd = ys.AsSpan(0, Math.Min(Depth, ys.Length));
+            var xd = xs[..Math.Min(Depth, xs.Length)];
+            var yd = ys[..Math.Min(Depth, ys.Length)];
             foreach (var i in xd)
             {
                 if (_hypernyms.TryGetValue(i, out var up))

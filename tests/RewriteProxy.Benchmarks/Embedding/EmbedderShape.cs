@@ -8,7 +8,7 @@ namespace RewriteProxy.Benchmarks.Embedding;
 
 /// <summary>
 /// Memory and speed of one way to hold the model, in a fresh process per shape (resident memory is per process):
-/// <code>dotnet RewriteProxy.Benchmarks.dll embed-shape --sessions 2 --threads 1 [--prepack 1] [--arena 0] [--spin 0] [--global 0]</code>
+/// <code>dotnet RewriteProxy.Benchmarks.dll embed-shape --sessions 2 --threads 1 [--prepack 1] [--arena 0] [--spin 0] [--spin-stop 1] [--gap-ms 5] [--global 0]</code>
 /// sessions × threads each; prepack: one PrePackedWeightsContainer shared by the sessions (their packed weights are
 /// held once); arena: ORT's CPU memory arena; spin: intra-op threads spin after work; global: one process-wide
 /// intra-op pool of `threads` threads shared by every session instead of a pool per session.
@@ -22,7 +22,8 @@ public static class EmbedderShape
     public static int Run(string[] args)
     {
         int sessions = 2, threads = 1;
-        bool prepack = false, arena = true, spin = true, global = false, noPrepacking = false;
+        bool prepack = false, arena = true, spin = true, global = false, noPrepacking = false, spinStop = false;
+        int gapMs = 0;
         for (int i = 0; i < args.Length; i++)
         {
             switch (args[i])
@@ -34,6 +35,8 @@ public static class EmbedderShape
                 case "--spin": spin = args[++i] == "1"; break;
                 case "--global": global = args[++i] == "1"; break;
                 case "--no-prepacking": noPrepacking = args[++i] == "1"; break;
+                case "--spin-stop": spinStop = args[++i] == "1"; break;
+                case "--gap-ms": gapMs = int.Parse(args[++i]); break;
             }
         }
         double rssBefore = Rss();
@@ -63,6 +66,8 @@ public static class EmbedderShape
                 if (global) options.DisablePerSessionThreads();
                 if (!spin) options.AddSessionConfigEntry("session.intra_op.allow_spinning", "0");
                 if (noPrepacking) options.AddSessionConfigEntry("session.disable_prepacking", "1");
+                // ORT's session.force_spinning_stop: threads spin within a run, and stop spinning when it ends.
+                if (spinStop) options.AddSessionConfigEntry("session.force_spinning_stop", "1");
                 pool[s] = container is null ? new InferenceSession(source.Model, options) : new InferenceSession(source.Model, options, container);
                 Console.WriteLine($"  session {s + 1} created: {Split()}");
             }
@@ -103,6 +108,8 @@ public static class EmbedderShape
             long t0 = Stopwatch.GetTimestamp();
             One();
             lone[i] = Stopwatch.GetElapsedTime(t0).TotalMilliseconds;
+            // A pause between questions, as a proxy has between semantic hits: spinning threads burn CPU in it.
+            if (gapMs > 0) Thread.Sleep(gapMs);
         }
         // CPU time per lone question, spinning threads included: unlike wall time, it hardly depends on other load.
         double loneCpu = (Process.GetCurrentProcess().TotalProcessorTime - cpu0).TotalMilliseconds / lone.Length;
@@ -117,9 +124,9 @@ public static class EmbedderShape
         }
         double two = PerQuestion(2, 100), four = PerQuestion(4, 50);
         double rssAfter = Rss();
-        Console.WriteLine($"sessions {sessions} threads {threads} prepack {(prepack ? 1 : 0)} arena {(arena ? 1 : 0)} spin {(spin ? 1 : 0)} global {(global ? 1 : 0)}: " +
+        Console.WriteLine($"sessions {sessions} threads {threads} prepack {(prepack ? 1 : 0)} arena {(arena ? 1 : 0)} spin {(spin ? 1 : 0)} spin-stop {(spinStop ? 1 : 0)} global {(global ? 1 : 0)}: " +
             $"VmRSS before {rssBefore:0} MB, loaded {rssLoaded:0} MB (+{rssLoaded - rssBefore:0}), after runs {rssAfter:0} MB; " +
-            $"lone p10 {lone[lone.Length / 10]:0.00} p50 {lone[lone.Length / 2]:0.00} ms p90 {lone[lone.Length * 9 / 10]:0.00} ms, CPU {loneCpu:0.00} ms; per question at 2 callers {two:0.00} ms, at 4 callers {four:0.00} ms; load {File.ReadAllText("/proc/loadavg").Split(' ')[0]}");
+            $"lone p10 {lone[lone.Length / 10]:0.00} p50 {lone[lone.Length / 2]:0.00} ms p90 {lone[lone.Length * 9 / 10]:0.00} ms, CPU {loneCpu:0.00} ms (gap {gapMs} ms); per question at 2 callers {two:0.00} ms, at 4 callers {four:0.00} ms; load {File.ReadAllText("/proc/loadavg").Split(' ')[0]}");
         foreach (var v in input) v.Dispose();
         foreach (var s in pool) s.Dispose();
         return 0;

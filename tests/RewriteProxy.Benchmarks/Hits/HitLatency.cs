@@ -130,7 +130,7 @@ public static class HitLatency
         return 0;
     }
 
-    static InferenceSession Session(EmbeddingModelSource source, int threads, bool spin = true)
+    internal static InferenceSession Session(EmbeddingModelSource source, int threads, bool spin = true)
     {
         var options = new Microsoft.ML.OnnxRuntime.SessionOptions
         {
@@ -143,7 +143,7 @@ public static class HitLatency
         return new InferenceSession(source.Model, options);
     }
 
-    static OrtValue[] Prepare(string[] inputNames, IReadOnlyList<int> pieces)
+    internal static OrtValue[] Prepare(string[] inputNames, IReadOnlyList<int> pieces)
     {
         var ids = pieces.Select(p => (long)p).ToArray();
         long[] shape = [1, ids.Length];

@@ -75,6 +75,17 @@ public static class HitStages
             long id = near[0].Id;
             var entry = (await store.GetAsync(id, minCreated, CancellationToken.None))!;
             var asked = guard.Extract(Paraphrase);
+            var decision = new HitDecision(guard);
+            // The same model with the proxy's session settings, run on pre-encoded input: the floor of "embed the question".
+            var source = EmbeddingModelSource.Packaged();
+            using var bare = HitLatency.Session(source, Environment.ProcessorCount, spin: false);
+            var encoder = WordPieceEncoder.Load(new MemoryStream(source.Vocabulary), "vocab.txt", 256);
+            string[] inputNames = bare.InputMetadata.Keys.ToArray();
+            var input = HitLatency.Prepare(inputNames, encoder.Encode(Paraphrase)!);
+            using var runOptions = new Microsoft.ML.OnnxRuntime.RunOptions();
+            var askedRead = decision.Read(Paraphrase);
+            var entryRead = decision.Read(entry.Question);
+            double similarity = near[0].Similarity;
 
             var stages = new (string Name, Func<object?> Run)[]
             {
@@ -88,32 +99,42 @@ public static class HitStages
                 ("store.FindExactAsync (no row: paraphrase)", () => store.FindExactAsync(scope, normalized, minCreated, CancellationToken.None).AsTask().GetAwaiter().GetResult()),
                 ("store.FindExactAsync (row: question)", () => store.FindExactAsync(scope, questionNormalized, minCreated, CancellationToken.None).AsTask().GetAwaiter().GetResult()),
                 ("embed the question (model run + tokens)", () => embedder.Embed(Paraphrase)),
+                ("bare model run, proxy's session settings (pre-encoded)", () => { using var o = bare.Run(runOptions, inputNames, input, ["last_hidden_state"]); return null; }),
+                ("word pieces of the question", () => encoder.Encode(Paraphrase)),
                 ("index.Search (k = 4)", () => index.Search(scope, vector, SemanticCache.Candidates, (float)lane.HitSimilarity)),
                 ("store.GetAsync (one candidate)", () => store.GetAsync(id, minCreated, CancellationToken.None).AsTask().GetAwaiter().GetResult()),
                 ("guard.Extract (asked question)", () => guard.Extract(Paraphrase)),
                 ("guard.Extract (candidate's question)", () => guard.Extract(entry.Question)),
                 ("guard.Compare (extracted anchors)", () => guard.Compare(asked, guard.Extract(entry.Question))),
+                ("decision.Read (asked question)", () => decision.Read(Paraphrase)),
+                ("decision.Read (candidate's question)", () => decision.Read(entry.Question)),
+                ("decision.Decide (both read)", () => decision.Decide(askedRead, entryRead, similarity)),
                 ("cache.LookupAsync, exact hit (whole)", () => cache.LookupAsync(new CacheKey(lane.Name, scope, partition, Question, questionNormalized), lane.HitSimilarity, CancellationToken.None).AsTask().GetAwaiter().GetResult()),
                 ("cache.LookupAsync, semantic hit (whole)", () => cache.LookupAsync(new CacheKey(lane.Name, scope, partition, Paraphrase, normalized), lane.HitSimilarity, CancellationToken.None).AsTask().GetAwaiter().GetResult()),
                 ("HTTP exact hit (whole call)", () => PostAsync(client, questionBody).GetAwaiter().GetResult()),
                 ("HTTP semantic hit (whole call)", () => PostAsync(client, paraphraseBody).GetAwaiter().GetResult()),
                 ("HTTP GET /healthz (empty round trip)", () => client.GetStringAsync("/healthz").GetAwaiter().GetResult()),
             };
-            Console.WriteLine($"hit stages: {calls} calls each after {calls / 5} unrecorded; load {Load()}");
-            Console.WriteLine("| stage | p50 µs | p90 µs |");
-            Console.WriteLine("| --- | ---: | ---: |");
-            foreach (var (name, run) in stages)
-            {
+            Console.WriteLine($"hit stages: {calls} calls each after {calls / 5} unrecorded, the stages in turn call by call " +
+                $"(a change of the machine's load falls on every stage alike); load {Load()}");
+            foreach (var (_, run) in stages)
                 for (int i = 0; i < calls / 5; i++) run();
-                var times = new double[calls];
-                for (int i = 0; i < calls; i++)
+            var times = stages.Select(_ => new double[calls]).ToArray();
+            for (int i = 0; i < calls; i++)
+            {
+                for (int k = 0; k < stages.Length; k++)
                 {
                     long t0 = Stopwatch.GetTimestamp();
-                    run();
-                    times[i] = Stopwatch.GetElapsedTime(t0).TotalMicroseconds;
+                    stages[k].Run();
+                    times[k][i] = Stopwatch.GetElapsedTime(t0).TotalMicroseconds;
                 }
-                Array.Sort(times);
-                Console.WriteLine($"| {name} | {times[calls / 2]:0} | {times[calls * 9 / 10]:0} |");
+            }
+            Console.WriteLine("| stage | p50 µs | p90 µs |");
+            Console.WriteLine("| --- | ---: | ---: |");
+            for (int k = 0; k < stages.Length; k++)
+            {
+                Array.Sort(times[k]);
+                Console.WriteLine($"| {stages[k].Name} | {times[k][calls / 2]:0} | {times[k][calls * 9 / 10]:0} |");
             }
             Console.WriteLine($"load {Load()}");
             return 0;

@@ -1,0 +1,92 @@
+using RewriteProxy.Embedding;
+
+namespace RewriteProxy.Cache;
+
+/// <summary>
+/// Candidate signals from the model's own per-word states (<see cref="TokenStates"/>), after BERTScore (Zhang et al., ICLR
+/// 2020: each word of one text greedily matched by cosine to its best counterpart in the other, precision, recall and F1;
+/// no idf weighting, no baseline rescaling, which a standardised logistic combiner does not need): a word WordNet does not
+/// pair with anything may still have a counterpart in context ("pause" / "freeze" a membership). Not in the shipped
+/// combiner: measured by HitCombinerTrainingTokenTests (docs/measurements/precision.md, "Per-token states").
+/// </summary>
+internal static partial class HitFeatures
+{
+    public static readonly string[] TokenNames =
+    [
+        "token_f1", "token_min_pr", "content_f1", "novel_match_mean", "novel_match_min", "novel_unmatched",
+    ];
+
+    /// <summary>Best-match cosine under which an unexplained content word counts as having no counterpart (measured: 0.5–0.7 on dev).</summary>
+    public const double MatchFloor = 0.6;
+
+    public static double[] OfTokens(HitQuestion asked, HitQuestion cached, QuestionDiff diff, TokenStates askedStates, TokenStates cachedStates,
+        double matchFloor = MatchFloor)
+    {
+        var a = WordVectors(asked.Words, askedStates);
+        var c = WordVectors(cached.Words, cachedStates);
+        var (pa, rc) = Score(Present(a, _ => true), Present(c, _ => true));
+        var (ca, cc) = Score(Present(a, k => asked.Words.Classes[k] == WordClass.Content), Present(c, k => cached.Words.Classes[k] == WordClass.Content));
+        var best = new List<double>();
+        foreach (var (gapA, gapC) in diff.Gaps)
+        {
+            foreach (var k in gapA) if (Best(asked.Words, a, k, cached.Words, c) is { } b) best.Add(b);
+            foreach (var k in gapC) if (Best(cached.Words, c, k, asked.Words, a) is { } b) best.Add(b);
+        }
+        return
+        [
+            F1(pa, rc),
+            Math.Min(pa, rc),
+            F1(ca, cc),
+            best.Count == 0 ? 1 : best.Average(),
+            best.Count == 0 ? 1 : best.Min(),
+            best.Count(b => b < matchFloor),
+        ];
+    }
+
+    static double F1(double p, double r) => p + r <= 0 ? 0 : 2 * p * r / (p + r);
+
+    /// <summary>Each side's mean best-match cosine against the other (BERTScore's precision and recall, the texts taken in turn).</summary>
+    static (double, double) Score(List<float[]> x, List<float[]> y)
+    {
+        if (x.Count == 0 || y.Count == 0) return (0, 0);
+        return (x.Average(v => y.Max(u => (double)VectorMath.Dot(v, u))), y.Average(u => x.Max(v => (double)VectorMath.Dot(v, u))));
+    }
+
+    static List<float[]> Present(float[]?[] vectors, Func<int, bool> which)
+    {
+        var list = new List<float[]>();
+        for (var k = 0; k < vectors.Length; k++) if (vectors[k] is { } v && which(k)) list.Add(v);
+        return list;
+    }
+
+    /// <summary>Best cosine of content word <paramref name="k"/> to a content word of the other question; null for a word without a state.</summary>
+    static double? Best(QuestionWords q, float[]?[] vectors, int k, QuestionWords other, float[]?[] otherVectors)
+    {
+        if (q.Classes[k] != WordClass.Content || vectors[k] is not { } v) return null;
+        double best = 0;
+        for (var j = 0; j < other.Count; j++)
+            if (other.Classes[j] == WordClass.Content && otherVectors[j] is { } u) best = Math.Max(best, VectorMath.Dot(v, u));
+        return best;
+    }
+
+    /// <summary>
+    /// The state of each of the decision's words: the next model word spelled the same, within a few words (the model also
+    /// has the apostrophes and hyphens the decision drops: "driver's" is "driver ' s"). A word not found ("ca" of "can't",
+    /// a word with an accent) has none.
+    /// </summary>
+    static float[]?[] WordVectors(QuestionWords q, TokenStates states)
+    {
+        const int lookAhead = 3;
+        var vectors = new float[]?[q.Count];
+        var next = 0;
+        for (var k = 0; k < q.Count; k++)
+            for (var w = next; w < Math.Min(states.Words.Count, next + lookAhead); w++)
+                if (states.Words[w] == q.Words[k])
+                {
+                    vectors[k] = states.Vectors[w];
+                    next = w + 1;
+                    break;
+                }
+        return vectors;
+    }
+}

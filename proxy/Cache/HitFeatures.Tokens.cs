@@ -19,13 +19,17 @@ internal static partial class HitFeatures
     /// <summary>Best-match cosine under which an unexplained content word counts as having no counterpart (measured: 0.5–0.7 on dev).</summary>
     public const double MatchFloor = 0.6;
 
+    /// <summary>The signals of <see cref="TokenNames"/> for one pair; <paramref name="weight"/> is BERTScore's idf weight of a word
+    /// (the decision's spelling), null weighing every word 1.</summary>
     public static double[] OfTokens(HitQuestion asked, HitQuestion cached, QuestionDiff diff, TokenStates askedStates, TokenStates cachedStates,
-        double matchFloor = MatchFloor)
+        double matchFloor = MatchFloor, Func<string, double>? weight = null)
     {
+        weight ??= _ => 1;
         var a = WordVectors(asked.Words, askedStates);
         var c = WordVectors(cached.Words, cachedStates);
-        var (pa, rc) = Score(Present(a, _ => true), Present(c, _ => true));
-        var (ca, cc) = Score(Present(a, k => asked.Words.Classes[k] == WordClass.Content), Present(c, k => cached.Words.Classes[k] == WordClass.Content));
+        var (pa, rc) = Score(Present(asked.Words, a, _ => true, weight), Present(cached.Words, c, _ => true, weight));
+        var (ca, cc) = Score(Present(asked.Words, a, k => asked.Words.Classes[k] == WordClass.Content, weight),
+            Present(cached.Words, c, k => cached.Words.Classes[k] == WordClass.Content, weight));
         var best = new List<double>();
         foreach (var (gapA, gapC) in diff.Gaps)
         {
@@ -45,17 +49,20 @@ internal static partial class HitFeatures
 
     static double F1(double p, double r) => p + r <= 0 ? 0 : 2 * p * r / (p + r);
 
-    /// <summary>Each side's mean best-match cosine against the other (BERTScore's precision and recall, the texts taken in turn).</summary>
-    static (double, double) Score(List<float[]> x, List<float[]> y)
+    /// <summary>Each side's weighted mean best-match cosine against the other (BERTScore's precision and recall, the texts taken in turn).</summary>
+    static (double, double) Score(List<(float[] Vector, double Weight)> x, List<(float[] Vector, double Weight)> y)
     {
         if (x.Count == 0 || y.Count == 0) return (0, 0);
-        return (x.Average(v => y.Max(u => (double)VectorMath.Dot(v, u))), y.Average(u => x.Max(v => (double)VectorMath.Dot(v, u))));
+        return (Side(x, y), Side(y, x));
+
+        static double Side(List<(float[] Vector, double Weight)> from, List<(float[] Vector, double Weight)> to) =>
+            from.Sum(v => v.Weight * to.Max(u => (double)VectorMath.Dot(v.Vector, u.Vector))) / Math.Max(1e-9, from.Sum(v => v.Weight));
     }
 
-    static List<float[]> Present(float[]?[] vectors, Func<int, bool> which)
+    static List<(float[], double)> Present(QuestionWords q, float[]?[] vectors, Func<int, bool> which, Func<string, double> weight)
     {
-        var list = new List<float[]>();
-        for (var k = 0; k < vectors.Length; k++) if (vectors[k] is { } v && which(k)) list.Add(v);
+        var list = new List<(float[], double)>();
+        for (var k = 0; k < vectors.Length; k++) if (vectors[k] is { } v && which(k)) list.Add((v, weight(q.Words[k])));
         return list;
     }
 

@@ -41,26 +41,32 @@ public sealed class HitCombinerTrainingTokenTests(ITestOutputHelper output)
                 for (var i = 0; i < batch.Length; i++) states[batch[i]] = s[i];
             }
         var diffs = dev.Where(p => p.Refusal is null).ToDictionary(p => p, p => decision.Examine(read[p.Asked], read[p.Cached], p.Similarity).Diff!);
-        double[] Tokens(TrainingPair p, double floor) => p.Refusal is null
-            ? HitFeatures.OfTokens(read[p.Asked], read[p.Cached], diffs[p], states[p.Asked], states[p.Cached], floor)
+        // BERTScore's idf: -log of the share of questions holding the word, over every distinct dev question (unlabelled text;
+        // the paper takes it from the reference sentences), +1 smoothing for a word none holds.
+        var documents = dev.SelectMany(p => new[] { p.Cached, p.Asked }).Distinct(StringComparer.Ordinal).ToList();
+        var holding = documents.SelectMany(d => decision.Read(d).Words.Words.Distinct()).CountBy(w => w).ToDictionary(StringComparer.Ordinal);
+        double Idf(string word) => Math.Log((documents.Count + 1.0) / (holding.GetValueOrDefault(word) + 1.0));
+        double[] Tokens(TrainingPair p, double floor, bool idf = false) => p.Refusal is null
+            ? HitFeatures.OfTokens(read[p.Asked], read[p.Cached], diffs[p], states[p.Asked], states[p.Cached], floor, idf ? Idf : null)
             : new double[HitFeatures.TokenNames.Length];
 
         Distributions(dev, p => Tokens(p, HitFeatures.MatchFloor));
         Cost(questions);
 
-        var sets = new List<(string Name, double Floor, int[] Columns)> { ("shipped features", HitFeatures.MatchFloor, []) };
-        sets.Add(("+ BERTScore F1, min(P, R), content-word F1", HitFeatures.MatchFloor, [0, 1, 2]));
+        var sets = new List<(string Name, double Floor, int[] Columns, bool Idf)> { ("shipped features", HitFeatures.MatchFloor, [], false) };
+        sets.Add(("+ BERTScore F1, min(P, R), content-word F1", HitFeatures.MatchFloor, [0, 1, 2], false));
+        sets.Add(("+ the same, idf-weighted", HitFeatures.MatchFloor, [0, 1, 2], true));
         foreach (var floor in MatchFloors)
         {
-            sets.Add(($"+ unexplained words' best match (mean, min, count < {floor})", floor, [3, 4, 5]));
-            sets.Add(($"+ all six (count < {floor})", floor, [0, 1, 2, 3, 4, 5]));
+            sets.Add(($"+ unexplained words' best match (mean, min, count < {floor})", floor, [3, 4, 5], false));
+            sets.Add(($"+ all six (count < {floor})", floor, [0, 1, 2, 3, 4, 5], false));
         }
         var results = new List<(string Name, IReadOnlyList<TrainingPair> Pairs, CrossValidation Chosen)>();
-        output.WriteLine("| features | floor | L2 | threshold | near-misses served | paraphrases served | other-question pairs served |");
-        output.WriteLine("| --- | --- | --- | --- | --- | --- | --- |");
-        foreach (var (name, floor, columns) in sets)
+        output.WriteLine("| features | floor | L2 | threshold | near-misses served | paraphrases served | other-question pairs served | paraphrases, other-question budget alone | paraphrases, near-miss budget alone |");
+        output.WriteLine("| --- | --- | --- | --- | --- | --- | --- | --- | --- |");
+        foreach (var (name, floor, columns, idf) in sets)
         {
-            var pairs = dev.Select(p => p with { Features = [.. p.Features, .. columns.Select(c => Tokens(p, floor)[c])] }).ToList();
+            var pairs = dev.Select(p => p with { Features = [.. p.Features, .. columns.Select(c => Tokens(p, floor, idf)[c])] }).ToList();
             var (chosen, sweep) = HitCombinerTraining.Choose(pairs);
             results.Add((name, pairs, chosen));
             int Served(Func<TrainingPair, bool> which) => chosen.Candidates.Count(p => which(p) && chosen.Served(p));
@@ -68,7 +74,8 @@ public sealed class HitCombinerTrainingTokenTests(ITestOutputHelper output)
                 + string.Join("; ", chosen.Candidates.Where(p => p.IsNearMiss).OrderByDescending(p => chosen.OutOfFold[p]).Take(2).Select(p => $"{chosen.OutOfFold[p]:F3} {p.Family} {p.Cached} / {p.Asked}"))
                 + " | top other: " + string.Join("; ", chosen.Candidates.Where(p => p.IsOther).OrderByDescending(p => chosen.OutOfFold[p]).Take(4).Select(p => $"{chosen.OutOfFold[p]:F3} {p.Cached} / {p.Asked}")));
             output.WriteLine($"| {name} | {chosen.Floor:F2} | {chosen.Lambda} | {chosen.Threshold:F3} | {Served(p => p.IsNearMiss)}/{pairs.Count(p => p.IsNearMiss)} | "
-                + $"{Served(p => p.IsParaphrase)}/{pairs.Count(p => p.IsParaphrase)} | {Served(p => p.IsOther)}/{pairs.Count(p => p.IsOther && p.Similarity >= chosen.Floor)} |");
+                + $"{Served(p => p.IsParaphrase)}/{pairs.Count(p => p.IsParaphrase)} | {Served(p => p.IsOther)}/{pairs.Count(p => p.IsOther && p.Similarity >= chosen.Floor)} | "
+                + $"{Alone(chosen, p => p.IsOther, HitCombinerTraining.OtherBudget)} | {Alone(chosen, p => p.IsNearMiss, HitCombinerTraining.NearMissBudget)} |");
         }
         var (allName, allPairs, allChosen) = results[^3];
         var trees = HitCombinerTraining.CrossValidate(allPairs, allChosen.Floor, 1,
@@ -123,6 +130,13 @@ public sealed class HitCombinerTrainingTokenTests(ITestOutputHelper output)
             + $"{words:F1} words with a state per question ({words * model.Dimension * sizeof(float) / 1024:F1} KiB as float32), "
             + $"{content:F1} content words ({content * model.Dimension / 1024.0:F1} KiB as int8)");
         output.WriteLine("");
+    }
+
+    /// <summary>Paraphrases served out of fold at the lowest threshold that keeps one budget alone: which of the two binds.</summary>
+    static int Alone(CrossValidation cv, Func<TrainingPair, bool> budgeted, int budget)
+    {
+        var threshold = cv.OutOfFold.Values.Append(1.0).Distinct().Order().First(t => cv.Candidates.Count(p => budgeted(p) && cv.OutOfFold[p] >= t) <= budget);
+        return cv.Candidates.Count(p => p.IsParaphrase && cv.OutOfFold[p] >= threshold);
     }
 
     /// <summary>Quartiles of each token signal per label, among the pairs the hard rules let through at similarity ≥ 0.55.</summary>

@@ -9,22 +9,11 @@ public sealed partial class OnnxEmbedder : ITokenEmbedder
     public TokenStates[] EmbedTokens(IReadOnlyList<string> texts)
     {
         ArgumentNullException.ThrowIfNull(texts);
-        var states = new TokenStates[texts.Count];
-        var pieces = new IReadOnlyList<int>?[texts.Count];
-        int rows = 0, longest = 0;
-        for (int i = 0; i < texts.Count; i++)
-        {
-            pieces[i] = _encoder.Encode(texts[i] ?? "");
-            if (pieces[i] is { } ids)
-            {
-                rows++;
-                longest = Math.Max(longest, ids.Count);
-            }
-            else
-            {
-                states[i] = TokenStates.Empty;
-            }
-        }
+        // Encoded as Embed encodes (a text with nothing to embed has no pieces and no words); kept apart from Embed so that
+        // the sentence path is untouched.
+        IReadOnlyList<int>?[] pieces = texts.Select(t => _encoder.Encode(t ?? "")).ToArray();
+        var states = pieces.Select(p => p is null ? TokenStates.Empty : null!).ToArray();
+        int rows = pieces.Count(p => p is not null), longest = pieces.Max(p => p?.Count ?? 0);
         if (rows > 0)
             Run(pieces, rows, longest, [], hidden => ReadStates(hidden, texts, pieces, longest, states));
         return states;

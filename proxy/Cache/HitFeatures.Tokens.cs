@@ -66,14 +66,51 @@ internal static partial class HitFeatures
         return list;
     }
 
-    /// <summary>Best cosine of content word <paramref name="k"/> to a content word of the other question; null for a word without a state.</summary>
+    /// <summary>
+    /// Best cosine of unexplained word <paramref name="k"/> (content, or a particle that replaced another) to a content word or
+    /// particle of the other question; null for a word without a state. Particles count: a gap of "in" against "out" alone
+    /// must not read as fully matched.
+    /// </summary>
     static double? Best(QuestionWords q, float[]?[] vectors, int k, QuestionWords other, float[]?[] otherVectors)
     {
-        if (q.Classes[k] != WordClass.Content || vectors[k] is not { } v) return null;
+        if (!Open(q.Classes[k]) || vectors[k] is not { } v) return null;
         double best = 0;
         for (var j = 0; j < other.Count; j++)
-            if (other.Classes[j] == WordClass.Content && otherVectors[j] is { } u) best = Math.Max(best, VectorMath.Dot(v, u));
+            if (Open(other.Classes[j]) && otherVectors[j] is { } u) best = Math.Max(best, VectorMath.Dot(v, u));
         return best;
+    }
+
+    static bool Open(WordClass c) => c is WordClass.Content or WordClass.Particle;
+
+    /// <summary>
+    /// The alignment with one more explanation beside WordNet's: an unexplained content word whose best counterpart in context
+    /// has cosine ≥ <paramref name="floor"/> counts as explained, so that the shipped features read the rest. A particle left
+    /// alone on one side no longer counts, as in <see cref="QuestionDiff.Compare"/>.
+    /// </summary>
+    public static QuestionDiff Explain(HitQuestion asked, HitQuestion cached, QuestionDiff diff, TokenStates askedStates, TokenStates cachedStates, double floor)
+    {
+        var a = WordVectors(asked.Words, askedStates);
+        var c = WordVectors(cached.Words, cachedStates);
+        var novelA = new List<string>();
+        var novelC = new List<string>();
+        var gaps = new List<(int[], int[])>();
+        int substitutions = 0, explained = 0;
+        foreach (var (gapA, gapC) in diff.Gaps)
+        {
+            var na = gapA.Where(k => !(asked.Words.Classes[k] == WordClass.Content && Best(asked.Words, a, k, cached.Words, c) >= floor)).ToList();
+            var nc = gapC.Where(k => !(cached.Words.Classes[k] == WordClass.Content && Best(cached.Words, c, k, asked.Words, a) >= floor)).ToList();
+            explained += gapA.Length - na.Count + gapC.Length - nc.Count;
+            if (na.Count == 0 || nc.Count == 0)
+            {
+                na.RemoveAll(k => asked.Words.Classes[k] != WordClass.Content);
+                nc.RemoveAll(k => cached.Words.Classes[k] != WordClass.Content);
+            }
+            novelA.AddRange(na.Select(k => asked.Words.Words[k]));
+            novelC.AddRange(nc.Select(k => cached.Words.Words[k]));
+            if (na.Count > 0 && nc.Count > 0) substitutions++;
+            if (na.Count > 0 || nc.Count > 0) gaps.Add(([.. na], [.. nc]));
+        }
+        return new QuestionDiff(novelA, novelC, substitutions, diff.Swap) { Gaps = gaps, Aligned = diff.Aligned, ExplainedWords = diff.ExplainedWords + explained };
     }
 
     /// <summary>

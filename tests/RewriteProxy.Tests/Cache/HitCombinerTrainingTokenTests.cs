@@ -18,6 +18,8 @@ public sealed class HitCombinerTrainingTokenTests(ITestOutputHelper output)
 {
     static readonly double[] MatchFloors = [0.5, 0.6, 0.7];
 
+    static readonly double[] ExplainFloors = [0.5, 0.6, 0.7, 0.8];
+
     readonly List<string> _binding = [];
 
     [Fact]
@@ -61,12 +63,15 @@ public sealed class HitCombinerTrainingTokenTests(ITestOutputHelper output)
             sets.Add(($"+ unexplained words' best match (mean, min, count < {floor})", floor, [3, 4, 5], false));
             sets.Add(($"+ all six (count < {floor})", floor, [0, 1, 2, 3, 4, 5], false));
         }
+        var explainedBy = ExplainFloors.Select(floor => ($"shipped features, a word with a counterpart in context ≥ {floor} explained", floor)).ToList();
         var results = new List<(string Name, IReadOnlyList<TrainingPair> Pairs, CrossValidation Chosen)>();
         output.WriteLine("| features | floor | L2 | threshold | near-misses served | paraphrases served | other-question pairs served | paraphrases, other-question budget alone | paraphrases, near-miss budget alone |");
         output.WriteLine("| --- | --- | --- | --- | --- | --- | --- | --- | --- |");
         foreach (var (name, floor, columns, idf) in sets)
+            Row(name, dev.Select(p => p with { Features = [.. p.Features, .. columns.Select(c => Tokens(p, floor, idf)[c])] }).ToList());
+
+        void Row(string name, List<TrainingPair> pairs)
         {
-            var pairs = dev.Select(p => p with { Features = [.. p.Features, .. columns.Select(c => Tokens(p, floor, idf)[c])] }).ToList();
             var (chosen, sweep) = HitCombinerTraining.Choose(pairs);
             results.Add((name, pairs, chosen));
             int Served(Func<TrainingPair, bool> which) => chosen.Candidates.Count(p => which(p) && chosen.Served(p));
@@ -77,7 +82,18 @@ public sealed class HitCombinerTrainingTokenTests(ITestOutputHelper output)
                 + $"{Served(p => p.IsParaphrase)}/{pairs.Count(p => p.IsParaphrase)} | {Served(p => p.IsOther)}/{pairs.Count(p => p.IsOther && p.Similarity >= chosen.Floor)} | "
                 + $"{Alone(chosen, p => p.IsOther, HitCombinerTraining.OtherBudget)} | {Alone(chosen, p => p.IsNearMiss, HitCombinerTraining.NearMissBudget)} |");
         }
-        var (allName, allPairs, allChosen) = results[^3];
+        foreach (var (name, floor) in explainedBy)
+        {
+            var pairs = dev.Select(p => p.Refusal is null
+                ? p with
+                {
+                    Features = HitFeatures.Of(read[p.Asked], read[p.Cached],
+                        HitFeatures.Explain(read[p.Asked], read[p.Cached], diffs[p], states[p.Asked], states[p.Cached], floor), p.Similarity, WordSenses.Default),
+                }
+                : p).ToList();
+            Row(name, pairs);
+        }
+        var (allName, allPairs, allChosen) = results[sets.FindIndex(s => s.Name == "+ all six (count < 0.6)")];
         var trees = HitCombinerTraining.CrossValidate(allPairs, allChosen.Floor, 1,
             (train, _) => BoostedTrees.Fit(train.Select(p => p.Features).ToList(), train.Select(p => p.IsParaphrase).ToList(),
                 train.Select(p => p.IsOther ? HitCombinerTraining.OtherWeight : 1.0).ToList(), 100, 2, 0.1, 2, 1).Probability);

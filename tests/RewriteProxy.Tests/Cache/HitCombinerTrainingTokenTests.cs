@@ -65,8 +65,8 @@ public sealed class HitCombinerTrainingTokenTests(ITestOutputHelper output)
         }
         var explainedBy = ExplainFloors.Select(floor => ($"shipped features, a word with a counterpart in context ≥ {floor} explained", floor)).ToList();
         var results = new List<(string Name, IReadOnlyList<TrainingPair> Pairs, CrossValidation Chosen)>();
-        output.WriteLine("| features | floor | L2 | threshold | near-misses served | paraphrases served | other-question pairs served | paraphrases, other-question budget alone | paraphrases, near-miss budget alone |");
-        output.WriteLine("| --- | --- | --- | --- | --- | --- | --- | --- | --- |");
+        output.WriteLine("| features | floor | L2 | threshold | near-misses served | paraphrases served | other-question pairs served | paraphrases, other-question budget alone | paraphrases, near-miss budget alone | paraphrases, other-question budget 4 |");
+        output.WriteLine("| --- | --- | --- | --- | --- | --- | --- | --- | --- | --- |");
         foreach (var (name, floor, columns, idf) in sets)
             Row(name, dev.Select(p => p with { Features = [.. p.Features, .. columns.Select(c => Tokens(p, floor, idf)[c])] }).ToList());
 
@@ -80,7 +80,8 @@ public sealed class HitCombinerTrainingTokenTests(ITestOutputHelper output)
                 + " | top other: " + string.Join("; ", chosen.Candidates.Where(p => p.IsOther).OrderByDescending(p => chosen.OutOfFold[p]).Take(4).Select(p => $"{chosen.OutOfFold[p]:F3} {p.Cached} / {p.Asked}")));
             output.WriteLine($"| {name} | {chosen.Floor:F2} | {chosen.Lambda} | {chosen.Threshold:F3} | {Served(p => p.IsNearMiss)}/{pairs.Count(p => p.IsNearMiss)} | "
                 + $"{Served(p => p.IsParaphrase)}/{pairs.Count(p => p.IsParaphrase)} | {Served(p => p.IsOther)}/{pairs.Count(p => p.IsOther && p.Similarity >= chosen.Floor)} | "
-                + $"{Alone(chosen, p => p.IsOther, HitCombinerTraining.OtherBudget)} | {Alone(chosen, p => p.IsNearMiss, HitCombinerTraining.NearMissBudget)} |");
+                + $"{Alone(chosen, p => p.IsOther, HitCombinerTraining.OtherBudget)} | {Alone(chosen, p => p.IsNearMiss, HitCombinerTraining.NearMissBudget)} | "
+                + $"{Loose(chosen)} |");
         }
         foreach (var (name, floor) in explainedBy)
         {
@@ -152,6 +153,18 @@ public sealed class HitCombinerTrainingTokenTests(ITestOutputHelper output)
     static int Alone(CrossValidation cv, Func<TrainingPair, bool> budgeted, int budget)
     {
         var threshold = cv.OutOfFold.Values.Append(1.0).Distinct().Order().First(t => cv.Candidates.Count(p => budgeted(p) && cv.OutOfFold[p] >= t) <= budget);
+        return cv.Candidates.Count(p => p.IsParaphrase && cv.OutOfFold[p] >= threshold);
+    }
+
+    /// <summary>
+    /// Paraphrases served out of fold with twice the other-question budget (near-misses still 0): some derived other-question pairs
+    /// that bind it are the same question in fact ("pause" / "freeze my membership"), so the budget of 2 is a little strict.
+    /// </summary>
+    static int Loose(CrossValidation cv)
+    {
+        var threshold = cv.OutOfFold.Values.Append(1.0).Distinct().Order().First(t =>
+            cv.Candidates.Count(p => p.IsNearMiss && cv.OutOfFold[p] >= t) <= HitCombinerTraining.NearMissBudget
+            && cv.Candidates.Count(p => p.IsOther && cv.OutOfFold[p] >= t) <= 2 * HitCombinerTraining.OtherBudget);
         return cv.Candidates.Count(p => p.IsParaphrase && cv.OutOfFold[p] >= threshold);
     }
 

@@ -5,7 +5,7 @@ namespace RewriteProxy.Cache;
 /// two are, and what the word alignment left unexplained (how much, in how many places, what kind of words). Each value
 /// is symmetric in the two questions. The order is the order of <see cref="Names"/> and of the coefficients file.
 /// </summary>
-internal static class HitFeatures
+internal static partial class HitFeatures
 {
     public static readonly string[] Names =
     [

@@ -86,8 +86,9 @@ public sealed partial class OnnxEmbedder : IEmbedder, IDisposable
         return vectors;
     }
 
-    /// <summary>One model run over the texts that have pieces, padded to the longest; fills their places in <paramref name="vectors"/>.</summary>
-    void Run(IReadOnlyList<int>?[] pieces, int rows, int longest, float[][] vectors)
+    /// <summary>One model run over the texts that have pieces, padded to the longest; fills their places in <paramref name="vectors"/>,
+    /// or hands the hidden state to <paramref name="read"/> instead (the per-word states, OnnxEmbedder.Tokens.cs).</summary>
+    void Run(IReadOnlyList<int>?[] pieces, int rows, int longest, float[][] vectors, Action<OrtValue>? read = null)
     {
         int cells = rows * longest;
         long[] ids = ArrayPool<long>.Shared.Rent(cells);
@@ -127,7 +128,10 @@ public sealed partial class OnnxEmbedder : IEmbedder, IDisposable
                 long started = Stopwatch.GetTimestamp();
                 using IDisposableReadOnlyCollection<OrtValue> outputs = session.Run(_runOptions, _inputNames, inputs.Values, _outputNames);
                 ProxyMetrics.EmbedDuration.Observe(Stopwatch.GetElapsedTime(started).TotalSeconds);
-                Pool(outputs[0], pieces, longest, vectors);
+                if (read is null)
+                    Pool(outputs[0], pieces, longest, vectors);
+                else
+                    read(outputs[0]);
             }
             finally
             {

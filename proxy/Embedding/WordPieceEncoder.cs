@@ -55,6 +55,9 @@ internal sealed class WordPieceEncoder
         return _tokenizer.EncodeToIds(normalized, MaxTokens, addSpecialTokens: true, out _, out _);
     }
 
+    /// <summary>How many pieces one word of the normalized text becomes (for <see cref="TokenStates"/>: which pieces are whose).</summary>
+    public int PieceCount(string word) => _tokenizer.EncodeToIds(word, addSpecialTokens: false).Count;
+
     /// <summary>The normalized text and how many of its characters fit in <see cref="MaxTokens"/> (for tests).</summary>
     internal (string Normalized, int CharsConsumed) Truncation(string text)
     {

@@ -138,14 +138,21 @@ internal static class HitCombinerTraining
     /// <summary>Every floor and penalty cross-validated; the winner refitted on all its candidates.</summary>
     public static (HitCombiner Combiner, CrossValidation Chosen, IReadOnlyList<CrossValidation> Sweep) Train(IReadOnlyList<TrainingPair> dev)
     {
+        var (chosen, sweep) = Choose(dev);
+        var model = Fit(chosen.Candidates, chosen.Lambda);
+        var features = HitFeatures.Names.Select((n, i) => (n, model.Mean[i], model.Scale[i], model.Weights[i])).ToList();
+        return (new HitCombiner(chosen.Floor, chosen.Threshold, model.Bias, features), chosen, sweep);
+    }
+
+    /// <summary>Every floor and penalty cross-validated, and the one chosen by the rule above (any feature set).</summary>
+    public static (CrossValidation Chosen, IReadOnlyList<CrossValidation> Sweep) Choose(IReadOnlyList<TrainingPair> dev)
+    {
         var sweep = Floors.SelectMany(f => Lambdas.Select(l => CrossValidate(dev, f, l))).ToList();
         static int Paraphrases(CrossValidation cv) => cv.Candidates.Count(p => p.IsParaphrase && cv.Served(p));
         var best = sweep.Max(Paraphrases);
         var chosen = sweep.Where(cv => Paraphrases(cv) >= best - FloorSlack).OrderByDescending(cv => cv.Floor)
             .ThenByDescending(Paraphrases).ThenByDescending(cv => cv.Lambda).First();
-        var model = Fit(chosen.Candidates, chosen.Lambda);
-        var features = HitFeatures.Names.Select((n, i) => (n, model.Mean[i], model.Scale[i], model.Weights[i])).ToList();
-        return (new HitCombiner(chosen.Floor, chosen.Threshold, model.Bias, features), chosen, sweep);
+        return (chosen, sweep);
     }
 
     public static string ShippedPath => Path.Combine(HitCorpus.Root, "..", "..", "proxy", "Cache", "Resources", "hit-combiner.tsv");

@@ -252,7 +252,7 @@ measure() { # name url body [header]
   fi
 }
 
-cpu_pid=""      # set: measure() also prints that process's CPU time per request
+cpu_pid=""      # set for one call (cpu_pid=$pid measure ...): measure() also prints that process's CPU time per request
 cpu_ticks() { awk '{print $14 + $15}' "/proc/$1/stat"; }
 
 ratio() { awk -v a="$1" -v b="$2" 'BEGIN{ printf "%.2f", a/b }'; }
@@ -290,9 +290,7 @@ run_lanes() {
   echo "lane hits (POST /lane/draft/v1/chat/completions):"
   expect_cache "$json_body" miss
   expect_cache "$json_body" hit-exact
-  cpu_pid=$proxy_pid
-  measure exact-hit        "http://127.0.0.1:$proxy_port/lane/draft/v1/chat/completions" "$json_body"
-  cpu_pid=""
+  cpu_pid=$proxy_pid measure exact-hit "http://127.0.0.1:$proxy_port/lane/draft/v1/chat/completions" "$json_body"
   stop_proxy
 
   # A/B: the same passthrough with a log line for every request (RequestLog at Debug; by default a successful
@@ -307,9 +305,7 @@ run_lanes() {
   local para_body; para_body=$(chat_body "$paraphrase")
   expect_cache "$json_body" miss
   expect_cache "$para_body" hit-semantic
-  cpu_pid=$proxy_pid
-  measure semantic-hit     "http://127.0.0.1:$proxy_port/lane/draft/v1/chat/completions" "$para_body"
-  cpu_pid=""
+  cpu_pid=$proxy_pid measure semantic-hit "http://127.0.0.1:$proxy_port/lane/draft/v1/chat/completions" "$para_body"
   stop_proxy
 
   echo

@@ -4,10 +4,7 @@ namespace RewriteProxy.Cache;
 internal sealed partial class WordSenses
 {
     /// <summary>Senses of the lemma over all parts of speech; 0 when WordNet does not know it (a name, a casual word, a typo).</summary>
-    public int SenseCount(string lemma)
-    {
-        return _senses.TryGetValue(lemma, out var groups) ? groups.Count : 0;
-    }
+    public int SenseCount(string lemma) => _senses.TryGetValue(lemma, out var groups) ? groups.Count : 0;
 
     /// <summary>The lemma is mostly a noun: it has noun senses and at least as many as verb senses ("cat", "fee"; not "pay").</summary>
     public bool IsNoun(string lemma) =>
@@ -56,7 +53,7 @@ internal sealed partial class WordSenses
     HashSet<int> Ancestors(ReadOnlySpan<int> senses)
     {
         var found = new HashSet<int>();
-        var level = senses[..Math.Min(Depth, senses.Length)].ToArray().ToList();
+        List<int> level = [.. senses[..Math.Min(Depth, senses.Length)]];
         for (var step = 0; step <= 2 && level.Count > 0; step++)
         {
             var next = new List<int>();

@@ -44,6 +44,8 @@ public sealed partial class OnnxEmbedder
         long started = Stopwatch.GetTimestamp();
         OnnxEmbedder embedder = Create(options, sessionCount, threads);
         // The model's bytes (a 90 MB managed array) are garbage once the sessions exist: ~85 MB of VmRSS given back.
+        // The proxy compacts once more when start-up is done (ProxyApp); this one, before the rest of start-up, keeps its
+        // peak down: VmHWM 322 MB with it, 397–419 MB without it, the same VmRSS once started (two runs each).
         HeapCompaction.Now();
         logger?.LogInformation(
             "Embedding model {Model} loaded in {Milliseconds} ms: id {ModelId}, {Dimension} dimensions, {Sessions} session(s) x {Threads} thread(s), {MaxTokens} word pieces",

@@ -15,7 +15,7 @@ public sealed partial class OnnxEmbedder : ITokenEmbedder
         var states = pieces.Select(p => p is null ? TokenStates.Empty : null!).ToArray();
         int rows = pieces.Count(p => p is not null), longest = pieces.Max(p => p?.Count ?? 0);
         if (rows > 0)
-            Run(pieces, rows, longest, [], hidden => ReadStates(hidden, texts, pieces, longest, states));
+            Run(pieces, rows, longest, hidden => ReadStates(hidden, texts, pieces, longest, states));
         return states;
     }
 

@@ -82,13 +82,13 @@ public sealed partial class OnnxEmbedder : IEmbedder, IDisposable
             }
         }
         if (rows > 0)
-            Run(pieces, rows, longest, vectors);
+            Run(pieces, rows, longest, hidden => Pool(hidden, pieces, longest, vectors));
         return vectors;
     }
 
-    /// <summary>One model run over the texts that have pieces, padded to the longest; fills their places in <paramref name="vectors"/>,
-    /// or hands the hidden state to <paramref name="read"/> instead (the per-word states, OnnxEmbedder.Tokens.cs).</summary>
-    void Run(IReadOnlyList<int>?[] pieces, int rows, int longest, float[][] vectors, Action<OrtValue>? read = null)
+    /// <summary>One model run over the texts that have pieces, padded to the longest; hands the hidden state to
+    /// <paramref name="read"/> (<see cref="Pool"/> for sentence vectors, the per-word states in OnnxEmbedder.Tokens.cs).</summary>
+    void Run(IReadOnlyList<int>?[] pieces, int rows, int longest, Action<OrtValue> read)
     {
         int cells = rows * longest;
         long[] ids = ArrayPool<long>.Shared.Rent(cells);
@@ -128,10 +128,7 @@ public sealed partial class OnnxEmbedder : IEmbedder, IDisposable
                 long started = Stopwatch.GetTimestamp();
                 using IDisposableReadOnlyCollection<OrtValue> outputs = session.Run(_runOptions, _inputNames, inputs.Values, _outputNames);
                 ProxyMetrics.EmbedDuration.Observe(Stopwatch.GetElapsedTime(started).TotalSeconds);
-                if (read is null)
-                    Pool(outputs[0], pieces, longest, vectors);
-                else
-                    read(outputs[0]);
+                read(outputs[0]);
             }
             finally
             {
@@ -193,9 +190,10 @@ public sealed partial class OnnxEmbedder : IEmbedder, IDisposable
         try
         {
             const string probeText = "dimension probe";
-            IReadOnlyList<int> pieces = _encoder.Encode(probeText)!;
+            IReadOnlyList<int>?[] pieces = [_encoder.Encode(probeText)!];
             var vectors = new float[1][];
-            Run([pieces], rows: 1, longest: pieces.Count, vectors);
+            int longest = pieces[0]!.Count;
+            Run(pieces, rows: 1, longest, hidden => Pool(hidden, pieces, longest, vectors));
             probe = vectors[0];
         }
         catch (OnnxRuntimeException ex)

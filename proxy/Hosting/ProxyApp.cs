@@ -55,6 +55,8 @@ public static class ProxyApp
         var services = builder.Services;
         services.AddSingleton(options);
         services.AddSingleton<Readiness>();
+        services.AddSingleton<IdleTrim>();
+        services.AddHostedService(sp => sp.GetRequiredService<IdleTrim>());
         services.AddHttpForwarder();
         services.AddSingleton(_ => UpstreamClient.Create(options.Upstream));
         services.AddSingleton<Passthrough>();
@@ -89,6 +91,7 @@ public static class ProxyApp
 
         var app = builder.Build();
         StartCache(app, options);
+        app.Use(app.Services.GetRequiredService<IdleTrim>().TrackAsync);
         app.UseMiddleware<RequestLog>();
         MapEndpoints(app, options);
         return app;

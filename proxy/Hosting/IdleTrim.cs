@@ -7,9 +7,9 @@ namespace RewriteProxy.Hosting;
 
 /// <summary>
 /// Gives back the memory a burst left behind, once the proxy is idle. The GC keeps the memory it committed for a burst
-/// (300 new streams at once: +40 MB with workstation GC, +90 MB with server GC, measured) although little of it is
-/// live afterwards; one compacting collection, which also returns glibc's free pages, gives most of it back (302 → 276
-/// MB in 36 ms, docs/measurements/performance.md). It blocks every thread while it runs, so it runs only when no
+/// (ten rounds of 300 new streams at once: +95 MB, measured) although little of it is live afterwards; one compacting
+/// collection, which also returns glibc's free pages, gives most of it back (357 → 281 MB in 44 ms,
+/// docs/measurements/performance.md §8). It blocks every thread while it runs, so it runs only when no
 /// request has been in flight for <see cref="LimitsOptions.IdleTrimAfter"/>, at most once per idle spell, and only
 /// when the resident size grew by <see cref="MinGrowthBytes"/> since the last one. A request that arrives during it waits
 /// for it.

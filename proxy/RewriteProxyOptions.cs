@@ -51,7 +51,7 @@ public sealed record LimitsOptions
     /// <summary>
     /// After this long with no request in flight, one compacting collection gives back the memory a burst left committed
     /// (<see cref="Hosting.IdleTrim"/>); zero turns it off. Default 5 s: a pause between bursts, not between the calls of
-    /// one; the collection blocks the process for 35–55 ms after a burst (measured), so it waits for a quiet moment.
+    /// one; the collection blocks the process for 35–61 ms after a burst (measured), so it waits for a quiet moment.
     /// </summary>
     public TimeSpan IdleTrimAfter { get; init; } = TimeSpan.FromSeconds(5);
 }

@@ -25,6 +25,8 @@
 #                              after start cost ~2x the CPU of later ones (JIT tiering; see docs/measurements)
 #   BENCH_FANOUT_PIN (0)       1: pin the fan-out's middle process to core 0 (default: every process sees both cores,
 #                              as the proxy would in production; the embedder then loads as it ships)
+#   BENCH_IDLE_S (8)           fanout: seconds idle after the last round before VmRSS is read again (the proxy's idle
+#                              trim comes 5-6 s after the last request, Limits:IdleTrimAfter)
 #   BENCH_PIN (1)              wrk runs: the process under test alone on core 0, wrk + upstream on core 1
 #   BENCH_DURATION (10s), BENCH_WARMUP (3s, unrecorded), BENCH_CONNECTIONS (16)   wrk runs
 #   BENCH_PROXY_ARGS, BENCH_PROXY_ENV   extra arguments / VAR=value words for every RewriteProxy started (A/B runs)
@@ -412,7 +414,7 @@ run_fanout() { # rounds
   "${fan_sut[@]}" "$forwarder_bin" "http://127.0.0.1:$forwarder_port" "http://127.0.0.1:$sse_port" >"$work/forwarder.log" 2>&1 &
   forwarder_pid=$!; pids+=($forwarder_pid)
   wait_http "http://127.0.0.1:$forwarder_port/v1/models" 600
-  local rss_start; rss_start=$(rss_mb "$proxy_pid")
+  local rss_start yarp_start; rss_start=$(rss_mb "$proxy_pid"); yarp_start=$(rss_mb "$forwarder_pid")
   local b_target=(); b_pid=""
   if want_b; then
     start_b fanout "$sse_port" "${fan_sut[@]}"
@@ -426,9 +428,14 @@ run_fanout() { # rounds
     --target "proxy=http://127.0.0.1:$proxy_port/v1/chat/completions,pid=$proxy_pid" \
     --target "yarp=http://127.0.0.1:$forwarder_port/v1/chat/completions,pid=$forwarder_pid" "${b_target[@]}"
   after=$(loadavg)
-  local rss_end; rss_end=$(rss_mb "$proxy_pid")
-  echo "  proxy VmRSS: $rss_start MB after start (model loaded), $rss_end MB after the fan-out; nginx (all processes): $(jq '[.[] | select(.Target=="nginx") | .RssMb] | max | floor' "$json") MB"
+  local rss_end yarp_end rss_idle; rss_end=$(rss_mb "$proxy_pid"); yarp_end=$(rss_mb "$forwarder_pid")
+  echo "  proxy VmRSS: $rss_start MB after start (model loaded), $rss_end MB right after the fan-out; nginx (all processes): $(jq '[.[] | select(.Target=="nginx") | .RssMb] | max | floor' "$json") MB"
   echo "  proxy memory after the fan-out: $(mem_detail "$proxy_pid")"
+  echo "  bare Kestrel+YARP VmRSS: $yarp_start MB after start, $yarp_end MB after the fan-out (the stack's own growth)"
+  # The proxy gives back what the burst left committed once idle for Limits:IdleTrimAfter (5 s; checked every second).
+  sleep "${BENCH_IDLE_S:-8}"
+  rss_idle=$(rss_mb "$proxy_pid")
+  echo "  proxy VmRSS ${BENCH_IDLE_S:-8} s after the fan-out: $rss_idle MB; $(grep -o 'memory given back.*' "$work/fanout/proxy.log" | tail -1)"
   echo "  load $before -> $after"
   if [ -n "$b_pid" ]; then
     echo "  proxyB VmRSS after the fan-out: $(rss_mb "$b_pid") MB; $(mem_detail "$b_pid")"
@@ -452,6 +459,8 @@ run_fanout() { # rounds
   fig[fanout_lag_added_nginx]=$(per_round "$json" '.nginx.LagP99 - .direct.LagP99' | median)
   fig[rss_start]=$rss_start
   fig[rss_end]=$rss_end
+  fig[rss_idle]=$rss_idle
+  fig[rss_yarp_growth]=$((yarp_end - yarp_start))
   echo "  per round, proxy CPU / nginx CPU: $(per_round "$json" '.proxy.CpuMs / .nginx.CpuMs' | awk '{printf "%.2f ", $1}')  bare YARP CPU / nginx CPU: $(per_round "$json" '.yarp.CpuMs / .nginx.CpuMs' | awk '{printf "%.2f ", $1}')"
   echo "  per round, added TTFB p99 (ms) proxy: $(per_round "$json" '.proxy.TtfbP99 - .direct.TtfbP99' | awk '{printf "%+.1f ", $1}')  nginx: $(per_round "$json" '.nginx.TtfbP99 - .direct.TtfbP99' | awk '{printf "%+.1f ", $1}')"
 }
@@ -474,13 +483,19 @@ run_hits() {
   fi
   dotnet "$hits_dll" hit-latency --url "http://127.0.0.1:$proxy_port" "${b_url[@]}" --calls "${BENCH_HIT_CALLS:-300}" \
     --blocks "${BENCH_HIT_BLOCKS:-5}" --json "$json"
+  # The model run as the proxy itself timed it while serving (rewriteproxy_embed_duration_seconds), to set beside the
+  # bench process's bare runs: what a served semantic hit spends in the model, and what around it.
+  local embed; embed=$(curl -sf "http://127.0.0.1:$proxy_port/metrics" | awk '/^rewriteproxy_embed_duration_seconds_sum/{s=$2} /^rewriteproxy_embed_duration_seconds_count/{n=$2} END{ if (n>0) printf "%.3f %d", s*1000/n, n }')
+  fig[hit_embed_mean]=${embed% *}
+  echo "  model run inside the proxy while serving: mean ${embed% *} ms over ${embed#* } runs (rewriteproxy_embed_duration_seconds)"
   [ -n "$b_pid" ] && stop_tracked "$b_pid"
   stop_proxy; stop_tracked "$upstream_pid"
   fig[hit_semantic_p50]=$(jq '."semantic-hit".p50' "$json")
   fig[hit_exact_p50]=$(jq '."exact-hit".p50' "$json")
   fig[hit_bare2_p50]=$(jq '."bare-2-threads".p50' "$json")
   fig[hit_bare1_p50]=$(jq '."bare-1-thread".p50' "$json")
-  fig[hit_bare2nospin_p50]=$(jq '."bare-2-threads-nospin".p50' "$json")
+  fig[hit_bare2proxy_p50]=$(jq '."bare-2-threads-proxy".p50' "$json")
+  fig[hit_bare2after_p50]=$(jq '."bare-2-threads-proxy-after-call".p50' "$json")
   fig[hit_roundtrip_p50]=$(jq '."round-trip".p50' "$json")
   fig[hit_semantic_ratio]=$(ratio "${fig[hit_semantic_p50]}" "${fig[hit_bare2_p50]}")
   if [ -n "$b_pid" ]; then
@@ -577,8 +592,11 @@ summary() {
       "${fig[fanout_cpu_yarp_ratio]}" "${fig[fanout_ttfb_added_yarp]}"
     printf '| fan-out added gap p99, proxy / nginx | %+.1f / %+.1f ms | (streaming stays incremental) | |\n' "${fig[fanout_gap_added_proxy]}" "${fig[fanout_gap_added_nginx]}"
     printf '| fan-out added arrival lag p99, proxy / nginx | %+.1f / %+.1f ms | | |\n' "${fig[fanout_lag_added_proxy]}" "${fig[fanout_lag_added_nginx]}"
-    printf '| proxy VmRSS after the fan-out (model loaded; %s MB at start) | %s MB = %.2f × 300 MB | ≤ 300 MB | %s |\n' "${fig[rss_start]}" \
+    printf '| proxy VmRSS right after the fan-out (model loaded; %s MB at start) | %s MB = %.2f × 300 MB | ≤ 300 MB | %s |\n' "${fig[rss_start]}" \
       "${fig[rss_end]}" "$(ratio "${fig[rss_end]}" 300)" "$(verdict "${fig[rss_end]}" '<=' 300)"
+    printf '| proxy VmRSS %s s after the fan-out (idle trim) | %s MB = %.2f × 300 MB | ≤ 300 MB | %s |\n' "${BENCH_IDLE_S:-8}" \
+      "${fig[rss_idle]}" "$(ratio "${fig[rss_idle]}" 300)" "$(verdict "${fig[rss_idle]}" '<=' 300)"
+    printf '| bare Kestrel+YARP VmRSS growth over the fan-out | +%s MB | (the stack'"'"'s own) | |\n' "${fig[rss_yarp_growth]}"
   fi
   if has hit_semantic_ratio; then
     printf '| semantic hit p50 / bare 2-thread run p50 (%.3f / %.3f ms) | %.2f | ≤ 1.3 | %s |\n' "${fig[hit_semantic_p50]}" "${fig[hit_bare2_p50]}" \
@@ -586,7 +604,11 @@ summary() {
     printf '| exact hit p50 (empty round trip %.3f ms) | %.3f ms | ≤ 0.5 ms | %s |\n' "${fig[hit_roundtrip_p50]}" "${fig[hit_exact_p50]}" \
       "$(verdict "${fig[hit_exact_p50]}" '<=' 0.5)"
     printf '| semantic hit p50 / bare run with the proxy'"'"'s session settings (2 threads, no spinning; %.3f ms) | %.2f | | |\n' \
-      "${fig[hit_bare2nospin_p50]}" "$(ratio "${fig[hit_semantic_p50]}" "${fig[hit_bare2nospin_p50]}")"
+      "${fig[hit_bare2proxy_p50]}" "$(ratio "${fig[hit_semantic_p50]}" "${fig[hit_bare2proxy_p50]}")"
+    printf '| semantic hit p50 / that bare run right after an exact hit on the proxy (%.3f ms) | %.2f | | |\n' \
+      "${fig[hit_bare2after_p50]}" "$(ratio "${fig[hit_semantic_p50]}" "${fig[hit_bare2after_p50]}")"
+    printf '| the model run inside the proxy while serving (mean, %.3f ms) / the bare run with its settings | %.2f | | |\n' \
+      "${fig[hit_embed_mean]}" "$(ratio "${fig[hit_embed_mean]}" "${fig[hit_bare2proxy_p50]}")"
   fi
   if has restart_snapshot; then
     printf '| restart with %s entries (#14): first semantic hit with the snapshot (ready at %s s) | %s s | ≤ 30 s | %s |\n' "${fig[restart_n]}" \

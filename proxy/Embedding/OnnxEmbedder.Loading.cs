@@ -22,16 +22,20 @@ public sealed partial class OnnxEmbedder
     /// a lone question, the common case for a semantic hit, runs on every core instead of on half of them. Callers
     /// share it concurrently (InferenceSession.Run is thread-safe). Measured against two one-thread sessions on 2 cores
     /// (docs/measurements/performance.md): no slower alone or with 2 or 4 concurrent callers once its threads do
-    /// not spin (<see cref="AllowSpinning"/>); with spinning it was about twice as slow under load.
+    /// not spin (<see cref="SetThreadWaiting"/>); with ORT's default spinning it was about twice as slow under load.
     /// </summary>
     internal const int DefaultSessions = 1;
 
     /// <summary>
-    /// Whether ORT's intra-op threads spin-wait for work instead of sleeping. Off: on a 2-core proxy a spinning thread
-    /// takes the core that request handling (or a concurrent question) needs. Measured on 2 cores under load, one
-    /// 2-thread session: 15–18 ms of CPU per question with spinning, 7–10 ms without (docs/measurements).
+    /// How ORT's intra-op threads wait for work: they sleep, never spin. On a 2-core proxy a spinning thread takes the
+    /// core that request handling or a concurrent question needs. Measured (docs/measurements/performance.md §8), one
+    /// 2-thread session: ORT's default spinning costs 11.8 ms of CPU per lone question against 6.5–8.0 with a 5 ms pause
+    /// between questions. Spinning only within a run (<c>session.force_spinning_stop</c>) makes a lone question 20–30 %
+    /// faster (p50 2.6–3.6 against 3.8–4.9 ms), but served semantic hits under 4 and 16 concurrent connections then cost
+    /// 9–12 % more CPU each, with 8–11 % fewer hits per second: not kept.
     /// </summary>
-    internal const bool AllowSpinning = false;
+    internal static void SetThreadWaiting(SessionOptions options) =>
+        options.AddSessionConfigEntry("session.intra_op.allow_spinning", "0");
 
     /// <summary>As <see cref="Load(EmbeddingOptions, ILogger?)"/> with <paramref name="sessionCount"/> sessions: 1 = one session
     /// shared by every caller; more = a pool, each session with its share of the threads.</summary>
@@ -71,9 +75,7 @@ public sealed partial class OnnxEmbedder
             IntraOpNumThreads = Math.Max(1, threads / sessionCount),
             InterOpNumThreads = 1,
         };
-        // Between runs, ORT's intra-op threads spin-wait for the next parallel section by default. Those spins take a core
-        // from request handling on a proxy that embeds now and then; a run's own sections still follow each other closely.
-        sessionOptions.AddSessionConfigEntry("session.intra_op.allow_spinning", AllowSpinning ? "1" : "0");
+        SetThreadWaiting(sessionOptions);
         var sessions = new InferenceSession[sessionCount];
         try
         {

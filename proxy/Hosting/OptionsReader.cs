@@ -73,7 +73,9 @@ public static class OptionsReader
             MaxRequestBytes = r.Long("Limits:MaxRequestBytes", limitsDefaults.MaxRequestBytes, min: 1024),
             MaxResponseBytes = r.Long("Limits:MaxResponseBytes", limitsDefaults.MaxResponseBytes, min: 1024),
             MaxPassthroughBytes = r.Long("Limits:MaxPassthroughBytes", limitsDefaults.MaxPassthroughBytes, min: 1024),
+            IdleTrimAfter = r.Duration("Limits:IdleTrimAfter", limitsDefaults.IdleTrimAfter, positive: false),
         };
+        if (limits.IdleTrimAfter < TimeSpan.Zero) r.Error("Limits:IdleTrimAfter is negative; use 0 to turn the idle trim off");
         var admin = new AdminOptions { Token = r.String("Admin:Token") };
         if (admin.Token is { Length: < 16 })
             r.Error("Admin:Token is shorter than 16 characters; use a long random token (or leave it out to turn the admin API off)");

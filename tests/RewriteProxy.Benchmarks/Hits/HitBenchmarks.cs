@@ -108,7 +108,7 @@ public class HitBenchmarks
             InterOpNumThreads = 1,
         });
         // The proxy's embedder splits the cores over OnnxEmbedder.DefaultSessions sessions (now one session with every
-        // core) and its threads do not spin (OnnxEmbedder.AllowSpinning): this is the floor with the same session settings.
+        // core) and its threads do not spin (OnnxEmbedder.SetThreadWaiting): the floor with the same session settings.
         var proxySized = new Microsoft.ML.OnnxRuntime.SessionOptions
         {
             GraphOptimizationLevel = GraphOptimizationLevel.ORT_ENABLE_ALL,
@@ -116,7 +116,7 @@ public class HitBenchmarks
             IntraOpNumThreads = Math.Max(1, Environment.ProcessorCount / Math.Min(OnnxEmbedder.DefaultSessions, Environment.ProcessorCount)),
             InterOpNumThreads = 1,
         };
-        proxySized.AddSessionConfigEntry("session.intra_op.allow_spinning", OnnxEmbedder.AllowSpinning ? "1" : "0");
+        OnnxEmbedder.SetThreadWaiting(proxySized);
         _proxySizedSession = new InferenceSession(source.Model, proxySized);
         _inputNames = _session.InputMetadata.Keys.ToArray();
         var encoder = WordPieceEncoder.Load(new MemoryStream(source.Vocabulary), "vocab.txt", options.Embedding.MaxTokens);

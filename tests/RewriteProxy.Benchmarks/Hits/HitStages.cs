@@ -78,7 +78,7 @@ public static class HitStages
             var decision = new HitDecision(guard);
             // The same model with the proxy's session settings, run on pre-encoded input: the floor of "embed the question".
             var source = EmbeddingModelSource.Packaged();
-            using var bare = HitLatency.Session(source, Environment.ProcessorCount, spin: false);
+            using var bare = HitLatency.Session(source, Environment.ProcessorCount, OnnxEmbedder.SetThreadWaiting);
             var encoder = WordPieceEncoder.Load(new MemoryStream(source.Vocabulary), "vocab.txt", 256);
             string[] inputNames = bare.InputMetadata.Keys.ToArray();
             var input = HitLatency.Prepare(inputNames, encoder.Encode(Paraphrase)!);

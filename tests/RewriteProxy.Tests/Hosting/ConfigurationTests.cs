@@ -36,6 +36,7 @@ public sealed class ConfigurationTests
     [InlineData("--Lanes:draft:Kind=summary", "Lanes:draft:Kind = 'summary' is not allowed; allowed: draft, siblings")]
     [InlineData("--Store:MaxEntries=-5", "Store:MaxEntries = -5 is not allowed; allowed: 1 or more")]
     [InlineData("--Upstream:Timeout=soon", "Upstream:Timeout = 'soon' is not a duration")]
+    [InlineData("--Limits:IdleTrimAfter=-00:00:05", "Limits:IdleTrimAfter is negative; use 0 to turn the idle trim off")]
     [InlineData("--Store:Provider=mysql", "Store:Provider = 'mysql' is not allowed; allowed: sqlite, postgres")]
     [InlineData("--Store:Provider=postgres", "Store:ConnectionString is missing; Store:Provider = postgres needs")]
     public void A_bad_value_stops_the_process_with_one_clear_line(string argument, string expected)

@@ -45,6 +45,7 @@ public sealed class DefaultsAgreeTests
         ["Limits:MaxRequestBytes"] = (o, _) => o.Limits.MaxRequestBytes,
         ["Limits:MaxResponseBytes"] = (o, _) => o.Limits.MaxResponseBytes,
         ["Limits:MaxPassthroughBytes"] = (o, _) => o.Limits.MaxPassthroughBytes,
+        ["Limits:IdleTrimAfter"] = (o, _) => o.Limits.IdleTrimAfter,
         ["Admin:Token"] = (o, _) => o.Admin.Token,
         ["Events:Enabled"] = (o, _) => o.Events.Enabled,
         ["Events:Retention"] = (o, _) => o.Events.Retention,

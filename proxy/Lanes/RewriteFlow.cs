@@ -24,6 +24,9 @@ public sealed record Miss(LaneOptions Lane, LaneEndpoint Endpoint, LaneRequest R
     IHeaderDictionary Headers, bool Store, float[]? QuestionVector, bool Located = true)
 {
     public IWireFormat Format => Endpoint.Format;
+
+    /// <summary>The entry's commit when it outlasted <see cref="RewriteFlow.CommitWait"/>: the answer went out before it.</summary>
+    internal Task? LateCommit { get; set; }
 }
 
 /// <summary>
@@ -85,8 +88,28 @@ public sealed class RewriteFlow(IRewriteCache cache, LaneUpstream upstream, Fail
         }
         finally
         {
-            await cache.ReleaseMissAsync(miss.Key);
+            // Released before a late entry lands, the claim would tell the waiting replicas that this one gave up, and
+            // each would ask upstream itself; so a late commit keeps it until the entry is there (or its hold runs out).
+            if (miss.LateCommit is { } late) _ = ReleaseAfterAsync(late, miss.Key);
+            else await cache.ReleaseMissAsync(miss.Key);
         }
+    }
+
+    async Task ReleaseAfterAsync(Task commit, CacheKey key)
+    {
+        try
+        {
+            await commit;
+        }
+        catch (CacheFailure f)
+        {
+            failOpen.Record(f.Reason, f.Message);
+        }
+        catch (OperationCanceledException)
+        {
+            // stopping: the claim lapses by itself
+        }
+        await cache.ReleaseMissAsync(key);
     }
 
     async Task<MissOutcome> AskAsync(Miss miss)
@@ -221,9 +244,10 @@ public sealed class RewriteFlow(IRewriteCache cache, LaneUpstream upstream, Fail
     async Task StoreAsync(Miss miss, float[] questionVector, string content, EntryScores scores, LaneAnswer completion)
     {
         var rewrite = new AcceptedRewrite(content, scores, completion.Model, completion.InputTokens, completion.OutputTokens);
+        var commit = cache.StoreAsync(miss.Key, miss.Located ? questionVector : null, rewrite, lifetime.ApplicationStopping);
         try
         {
-            await cache.StoreAsync(miss.Key, miss.Located ? questionVector : null, rewrite, lifetime.ApplicationStopping).WaitAsync(CommitWait);
+            await commit.WaitAsync(CommitWait);
         }
         catch (CacheFailure f)
         {
@@ -231,6 +255,7 @@ public sealed class RewriteFlow(IRewriteCache cache, LaneUpstream upstream, Fail
         }
         catch (TimeoutException)
         {
+            miss.LateCommit = commit;
             log.LogWarning("store: an entry took longer than {Ms} ms to commit; answered before it landed", CommitWait.TotalMilliseconds);
         }
     }

@@ -20,6 +20,14 @@ public sealed class PostgresConnector : IAsyncDisposable
     public const int DefaultConnectSeconds = 2;
 
     /// <summary>
+    /// Seconds opening the store (migrations or the schema check) may wait for its connection when the connection
+    /// string sets no <c>Timeout</c>: Npgsql's own default. The request path's short bound keeps a lane call from
+    /// waiting on a slow database; a start that gives up after 2 s on a busy database server is a failed start
+    /// (seen in a CI run on a loaded machine), and a start holds up no answer.
+    /// </summary>
+    public const int StartupConnectSeconds = 15;
+
+    /// <summary>
     /// Seconds a command may run when the connection string sets no <c>Command Timeout</c> (Npgsql's default is 30 s):
     /// request-path reads take milliseconds, so a database this slow is treated as down and the call fails open.
     /// </summary>
@@ -57,7 +65,13 @@ public sealed class PostgresConnector : IAsyncDisposable
         ConnectTimeout = TimeSpan.FromSeconds(builder.Timeout);
         CommandTimeout = TimeSpan.FromSeconds(builder.CommandTimeout);
         _source = NpgsqlDataSource.Create(builder);
+        _startupConnectionString = new NpgsqlConnectionStringBuilder(builder.ConnectionString)
+        {
+            Timeout = Names(connectionString, "Timeout") ? builder.Timeout : StartupConnectSeconds,
+        }.ConnectionString;
     }
+
+    readonly string _startupConnectionString;
 
     /// <summary>"postgres user@host:port/database": where the store is, for logs and messages; never the password.</summary>
     public string Location { get; }
@@ -168,6 +182,26 @@ public sealed class PostgresConnector : IAsyncDisposable
             throw;
         }
         catch (Exception e) when (IsDatabaseFailure(e))
+        {
+            throw Failure(what, e);
+        }
+    }
+
+    /// <summary>
+    /// Like <see cref="RunLongAsync{T}"/> for opening the store: its one connection waits up to
+    /// <see cref="StartupConnectSeconds"/> for the server (a pool of its own, closed when the work is done).
+    /// </summary>
+    public async Task<T> RunStartupAsync<T>(string what, Func<NpgsqlConnection, Task<T>> work, CancellationToken cancel)
+    {
+        try
+        {
+            await using var source = NpgsqlDataSource.Create(_startupConnectionString);
+            await using var connection = await source.OpenConnectionAsync(cancel);
+            var result = await work(connection);
+            Circuit.Succeeded();
+            return result;
+        }
+        catch (Exception e) when (IsDatabaseFailure(e) && !cancel.IsCancellationRequested)
         {
             throw Failure(what, e);
         }

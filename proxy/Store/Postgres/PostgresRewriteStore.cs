@@ -52,7 +52,7 @@ public sealed partial class PostgresRewriteStore : IRewriteStore
     public async Task OpenAsync(StoreAccess access, CancellationToken cancel)
     {
         if (_access is not null) throw new InvalidOperationException($"{Location}: the store is already open");
-        _storeId = await _connector.RunLongAsync("opening the store", c => access == StoreAccess.ReadWrite
+        _storeId = await _connector.RunStartupAsync("opening the store", c => access == StoreAccess.ReadWrite
             ? PostgresMigrations.MigrateAsync(c, _log, Location, cancel)
             : PostgresMigrations.CheckAsync(c, Location, cancel), cancel);
         _access = access;

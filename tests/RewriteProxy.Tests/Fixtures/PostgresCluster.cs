@@ -121,7 +121,12 @@ public sealed class PostgresCluster : IAsyncLifetime
         var postmaster = int.Parse(File.ReadLines(Path.Combine(_data, "postmaster.pid")).First());
         var children = File.ReadAllText($"/proc/{postmaster}/task/{postmaster}/children")
             .Split(' ', StringSplitOptions.RemoveEmptyEntries);
-        Run("kill", [signal, postmaster.ToString(), .. children]);
+        var (exit, output) = Execute("kill", [signal, postmaster.ToString(), .. children]);
+        // kill signals every PID it can; a backend that exited between the listing and the signal is no failure.
+        var vanished = children.Where(pid => !Directory.Exists($"/proc/{pid}")).ToList();
+        if (exit != 0 && (!Directory.Exists($"/proc/{postmaster}") || output.Split('\n', StringSplitOptions.RemoveEmptyEntries)
+                .Any(line => !vanished.Any(pid => line.Contains($"({pid})", StringComparison.Ordinal)))))
+            throw new InvalidOperationException($"kill {signal} {postmaster} {string.Join(' ', children)} failed ({exit}): {output}");
     }
 
     async Task StartOnFreePortAsync()

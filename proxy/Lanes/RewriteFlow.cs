@@ -107,7 +107,12 @@ public sealed class RewriteFlow(IRewriteCache cache, LaneUpstream upstream, Fail
         }
         catch (OperationCanceledException)
         {
-            // stopping: the claim lapses by itself
+            // stopping
+        }
+        catch (Exception e)
+        {
+            // Whatever ended the commit, the claim is let go: waiting replicas then ask upstream themselves.
+            log.LogWarning("store: a late commit failed: {Reason}", e.Message);
         }
         await cache.ReleaseMissAsync(key);
     }

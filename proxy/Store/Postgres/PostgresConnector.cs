@@ -1,3 +1,4 @@
+using System.Diagnostics;
 using System.Data.Common;
 using System.Net.Sockets;
 using System.Runtime.CompilerServices;
@@ -20,7 +21,7 @@ public sealed class PostgresConnector : IAsyncDisposable
     public const int DefaultConnectSeconds = 2;
 
     /// <summary>
-    /// Seconds opening the store (migrations or the schema check) may wait for its connection when the connection
+    /// Seconds opening the store (migrations or the schema check) may keep trying for its connection when the connection
     /// string sets no <c>Timeout</c>: Npgsql's own default. The request path's short bound keeps a lane call from
     /// waiting on a slow database; a start that gives up after 2 s on a busy database server is a failed start
     /// (seen in a CI run on a loaded machine), and a start holds up no answer.
@@ -65,13 +66,10 @@ public sealed class PostgresConnector : IAsyncDisposable
         ConnectTimeout = TimeSpan.FromSeconds(builder.Timeout);
         CommandTimeout = TimeSpan.FromSeconds(builder.CommandTimeout);
         _source = NpgsqlDataSource.Create(builder);
-        _startupConnectionString = new NpgsqlConnectionStringBuilder(builder.ConnectionString)
-        {
-            Timeout = Names(connectionString, "Timeout") ? builder.Timeout : StartupConnectSeconds,
-        }.ConnectionString;
+        _startupPatience = TimeSpan.FromSeconds(Names(connectionString, "Timeout") ? builder.Timeout : StartupConnectSeconds);
     }
 
-    readonly string _startupConnectionString;
+    readonly TimeSpan _startupPatience;
 
     /// <summary>"postgres user@host:port/database": where the store is, for logs and messages; never the password.</summary>
     public string Location { get; }
@@ -188,22 +186,44 @@ public sealed class PostgresConnector : IAsyncDisposable
     }
 
     /// <summary>
-    /// Like <see cref="RunLongAsync{T}"/> for opening the store: its one connection waits up to
-    /// <see cref="StartupConnectSeconds"/> for the server (a pool of its own, closed when the work is done).
+    /// Like <see cref="RunLongAsync{T}"/> for opening the store: a connection that times out while opening is tried again
+    /// until <see cref="StartupConnectSeconds"/> have passed. The connection comes from the request path's own pool, so
+    /// that pool holds a warm connection once the store is open: a first lane call that had to open one within the
+    /// request path's bound failed open on a loaded machine (measured in a CI run).
     /// </summary>
     public async Task<T> RunStartupAsync<T>(string what, Func<NpgsqlConnection, Task<T>> work, CancellationToken cancel)
     {
-        try
+        var clock = Stopwatch.StartNew();
+        NpgsqlConnection connection;
+        while (true)
         {
-            await using var source = NpgsqlDataSource.Create(_startupConnectionString);
-            await using var connection = await source.OpenConnectionAsync(cancel);
-            var result = await work(connection);
-            Circuit.Succeeded();
-            return result;
+            try
+            {
+                connection = await _source.OpenConnectionAsync(cancel);
+                break;
+            }
+            catch (NpgsqlException e) when (e.InnerException is TimeoutException && clock.Elapsed + ConnectTimeout <= _startupPatience
+                                             && !cancel.IsCancellationRequested)
+            {
+                // The server is there but slow to let a connection in: try again within the start's patience.
+            }
+            catch (Exception e) when (IsDatabaseFailure(e) && !cancel.IsCancellationRequested)
+            {
+                throw Failure(what, e);
+            }
         }
-        catch (Exception e) when (IsDatabaseFailure(e) && !cancel.IsCancellationRequested)
+        await using (connection)
         {
-            throw Failure(what, e);
+            try
+            {
+                var result = await work(connection);
+                Circuit.Succeeded();
+                return result;
+            }
+            catch (Exception e) when (IsDatabaseFailure(e) && !cancel.IsCancellationRequested)
+            {
+                throw Failure(what, e);
+            }
         }
     }
 

@@ -56,8 +56,8 @@ public sealed class IdleTrim(RewriteProxyOptions options, ILogger<IdleTrim> log)
         {
             while (await timer.WaitForNextTickAsync(stoppingToken))
             {
-                if (!clock.ShouldTrim(Stopwatch.GetElapsedTime(0), Started, InFlight, Environment.WorkingSet)) continue;
                 var before = Environment.WorkingSet;
+                if (!clock.ShouldTrim(Stopwatch.GetElapsedTime(0), Started, InFlight, before)) continue;
                 var start = Stopwatch.GetTimestamp();
                 HeapCompaction.Now();
                 var after = Environment.WorkingSet;

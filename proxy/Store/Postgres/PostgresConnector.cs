@@ -1,4 +1,3 @@
-using System.Diagnostics;
 using System.Data.Common;
 using System.Net.Sockets;
 using System.Runtime.CompilerServices;
@@ -12,21 +11,13 @@ namespace RewriteProxy.Store.Postgres;
 /// breaker in front of it, and every failure turned into a <see cref="StoreException"/> that names the database by
 /// <see cref="Location"/>, never by its connection string.
 /// </summary>
-public sealed class PostgresConnector : IAsyncDisposable
+public sealed partial class PostgresConnector : IAsyncDisposable
 {
     /// <summary>
     /// Seconds to wait for a connection when the connection string sets no <c>Timeout</c> (Npgsql's own default is
     /// 15 s): a database that cannot be reached makes a lane call wait this long once, then the circuit fails fast.
     /// </summary>
     public const int DefaultConnectSeconds = 2;
-
-    /// <summary>
-    /// Seconds opening the store (migrations or the schema check) may keep trying for its connection when the connection
-    /// string sets no <c>Timeout</c>: Npgsql's own default. The request path's short bound keeps a lane call from
-    /// waiting on a slow database; a start that gives up after 2 s on a busy database server is a failed start
-    /// (seen in a CI run on a loaded machine), and a start holds up no answer.
-    /// </summary>
-    public const int StartupConnectSeconds = 15;
 
     /// <summary>
     /// Seconds a command may run when the connection string sets no <c>Command Timeout</c> (Npgsql's default is 30 s):
@@ -68,8 +59,6 @@ public sealed class PostgresConnector : IAsyncDisposable
         _source = NpgsqlDataSource.Create(builder);
         _startupPatience = TimeSpan.FromSeconds(Names(connectionString, "Timeout") ? builder.Timeout : StartupConnectSeconds);
     }
-
-    readonly TimeSpan _startupPatience;
 
     /// <summary>"postgres user@host:port/database": where the store is, for logs and messages; never the password.</summary>
     public string Location { get; }
@@ -182,48 +171,6 @@ public sealed class PostgresConnector : IAsyncDisposable
         catch (Exception e) when (IsDatabaseFailure(e))
         {
             throw Failure(what, e);
-        }
-    }
-
-    /// <summary>
-    /// Like <see cref="RunLongAsync{T}"/> for opening the store: a connection that times out while opening is tried again
-    /// until <see cref="StartupConnectSeconds"/> have passed. The connection comes from the request path's own pool, so
-    /// that pool holds a warm connection once the store is open: a first lane call that had to open one within the
-    /// request path's bound failed open on a loaded machine (measured in a CI run).
-    /// </summary>
-    public async Task<T> RunStartupAsync<T>(string what, Func<NpgsqlConnection, Task<T>> work, CancellationToken cancel)
-    {
-        var clock = Stopwatch.StartNew();
-        NpgsqlConnection connection;
-        while (true)
-        {
-            try
-            {
-                connection = await _source.OpenConnectionAsync(cancel);
-                break;
-            }
-            catch (NpgsqlException e) when (e.InnerException is TimeoutException && clock.Elapsed + ConnectTimeout <= _startupPatience
-                                             && !cancel.IsCancellationRequested)
-            {
-                // The server is there but slow to let a connection in: try again within the start's patience.
-            }
-            catch (Exception e) when (IsDatabaseFailure(e) && !cancel.IsCancellationRequested)
-            {
-                throw Failure(what, e);
-            }
-        }
-        await using (connection)
-        {
-            try
-            {
-                var result = await work(connection);
-                Circuit.Succeeded();
-                return result;
-            }
-            catch (Exception e) when (IsDatabaseFailure(e) && !cancel.IsCancellationRequested)
-            {
-                throw Failure(what, e);
-            }
         }
     }
 

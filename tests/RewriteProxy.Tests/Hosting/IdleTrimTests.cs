@@ -20,10 +20,13 @@ public sealed class IdleTrimTests : UpstreamAndProxy
 
     static TimeSpan At(double seconds) => TimeSpan.FromSeconds(seconds);
 
+    /// <summary>The rule as the proxy starts it: 5 s idle, the shipped minimum growth, 260 MB resident at start.</summary>
+    static IdleClock NewClock() => new(IdleAfter, IdleTrim.MinGrowthBytes, Start);
+
     [Fact]
     public void Nothing_is_trimmed_before_the_first_request_however_long_the_proxy_idles()
     {
-        var clock = new IdleClock(IdleAfter, IdleTrim.MinGrowthBytes, Start);
+        var clock = NewClock();
         Assert.False(clock.ShouldTrim(At(1), started: 0, inFlight: 0, Grown));
         Assert.False(clock.ShouldTrim(At(60), started: 0, inFlight: 0, Grown));
     }
@@ -31,7 +34,7 @@ public sealed class IdleTrimTests : UpstreamAndProxy
     [Fact]
     public void After_a_burst_it_trims_once_the_idle_time_has_passed_and_not_before()
     {
-        var clock = new IdleClock(IdleAfter, IdleTrim.MinGrowthBytes, Start);
+        var clock = NewClock();
         Assert.False(clock.ShouldTrim(At(1), started: 300, inFlight: 300, Grown));
         // The streams ended between two checks: the quiet time counts from the last check that saw one in flight.
         Assert.False(clock.ShouldTrim(At(2), started: 300, inFlight: 0, Grown));
@@ -42,7 +45,7 @@ public sealed class IdleTrimTests : UpstreamAndProxy
     [Fact]
     public void A_long_stream_in_flight_keeps_it_from_trimming()
     {
-        var clock = new IdleClock(IdleAfter, IdleTrim.MinGrowthBytes, Start);
+        var clock = NewClock();
         for (var s = 1; s <= 120; s++) Assert.False(clock.ShouldTrim(At(s), started: 1, inFlight: 1, Grown));
         Assert.False(clock.ShouldTrim(At(121), started: 1, inFlight: 0, Grown));
         Assert.True(clock.ShouldTrim(At(126), started: 1, inFlight: 0, Grown));
@@ -51,7 +54,7 @@ public sealed class IdleTrimTests : UpstreamAndProxy
     [Fact]
     public void A_request_during_the_quiet_time_starts_it_again()
     {
-        var clock = new IdleClock(IdleAfter, IdleTrim.MinGrowthBytes, Start);
+        var clock = NewClock();
         Assert.False(clock.ShouldTrim(At(1), started: 10, inFlight: 0, Grown));
         Assert.False(clock.ShouldTrim(At(4), started: 11, inFlight: 0, Grown)); // a short request came and went
         Assert.False(clock.ShouldTrim(At(8), started: 11, inFlight: 0, Grown));
@@ -61,7 +64,7 @@ public sealed class IdleTrimTests : UpstreamAndProxy
     [Fact]
     public void Growth_below_the_minimum_is_not_worth_a_blocking_collection()
     {
-        var clock = new IdleClock(IdleAfter, IdleTrim.MinGrowthBytes, Start);
+        var clock = NewClock();
         Assert.False(clock.ShouldTrim(At(1), started: 5, inFlight: 0, Grown - 1));
         Assert.False(clock.ShouldTrim(At(30), started: 5, inFlight: 0, Grown - 1));
     }
@@ -69,7 +72,7 @@ public sealed class IdleTrimTests : UpstreamAndProxy
     [Fact]
     public void It_trims_once_per_idle_spell_and_again_only_after_new_requests_and_new_growth()
     {
-        var clock = new IdleClock(IdleAfter, IdleTrim.MinGrowthBytes, Start);
+        var clock = NewClock();
         Assert.False(clock.ShouldTrim(At(1), started: 300, inFlight: 0, Grown + 40 * Mb));
         Assert.True(clock.ShouldTrim(At(6), started: 300, inFlight: 0, Grown + 40 * Mb));
         clock.Trimmed(Start + 10 * Mb);

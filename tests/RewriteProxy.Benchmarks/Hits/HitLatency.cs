@@ -80,8 +80,8 @@ public static class HitLatency
         Func<Task> Call(string name) => name switch
         {
             "bare-2-threads" => () => { using var o = bare2.Run(runOptions, inputNames, input, outputNames); return Task.CompletedTask; },
-            "bare-2-threads-proxy" => () => { using var o = bare2Proxy.Run(runOptions, inputNames, input, outputNames); return Task.CompletedTask; },
-            "bare-2-threads-proxy-after-call" => () => { using var o = bare2Proxy.Run(runOptions, inputNames, input, outputNames); return Task.CompletedTask; },
+            "bare-2-threads-proxy" or "bare-2-threads-proxy-after-call" =>
+                () => { using var o = bare2Proxy.Run(runOptions, inputNames, input, outputNames); return Task.CompletedTask; },
             "bare-1-thread" => () => { using var o = bare1.Run(runOptions, inputNames, input, outputNames); return Task.CompletedTask; },
             "semantic-hit" => () => PostAsync(client, lanePath, paraphraseBody),
             "exact-hit" => () => PostAsync(client, lanePath, questionBody),
